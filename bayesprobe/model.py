@@ -1,0 +1,228 @@
+"""The whole I-V characteristic: composes electron and ion currents into one model.
+
+``ModelConfig`` fixes everything that is not inferred (probe, ion, collection theory,
+electron model); :func:`probe_current` evaluates the characteristic for ``k``
+parameter sets at once; :func:`floating_potential` finds its zero for every set.
+
+Parameter names (physical units):
+
+===============  ======  ==========================================================
+``n_e``          m^-3    electron density (total, both groups for bi-Maxwellian)
+``n_i``          m^-3    ion density (defaults to ``n_e``: quasi-neutral)
+``T_e``          eV      electron temperature (Maxwellian)
+``T_e_cold``     eV      cold-group temperature (bi-Maxwellian)
+``T_e_hot``      eV      hot-group temperature (bi-Maxwellian)
+``hot_fraction`` 1       hot density / total electron density
+``V_p``          V       plasma potential
+===============  ======  ==========================================================
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass, field, replace
+from typing import Mapping
+
+import numpy as np
+
+from .physics.constants import ion_mass as _ion_mass
+from .physics.electrons import electron_current
+from .physics.formulary import screening_temperature
+from .physics.geometry import Probe
+from .physics.ions import ION_THEORIES, bohm_factor as _bohm_factor, ion_current
+
+__all__ = ["ModelConfig", "ELECTRON_MODELS", "probe_current", "floating_potential",
+           "plasma_parameter_names", "effective_temperature"]
+
+ELECTRON_MODELS = ("maxwellian", "bi-maxwellian")
+
+
+@dataclass(frozen=True)
+class ModelConfig:
+    """Everything about the forward model that is fixed during a fit.
+
+    Parameters
+    ----------
+    probe : Probe
+    ion : str or float
+        Ion name from the table or mass in u (ignored if ``ion_mass_kg`` is given).
+    ion_collection : {"thin-sheath", "oml", "abr", "auto"}
+    electrons : {"maxwellian", "bi-maxwellian"}
+    T_i : float
+        Ion temperature in eV (OML ions; fall-off of the ion current above V_p).
+    bohm_factor : float or str
+        Sheath-edge density factor for thin-sheath ions (default exp(-1/2)).
+    sheath_expansion : bool
+        Child-law growth of the ion-collecting area (thin-sheath theory).
+    electron_sheath_expansion : bool
+        Planar probes: electron Child-law growth above V_p (default off).
+    quasi_neutral : bool
+        If True, n_i is tied to n_e; otherwise both are separate parameters.
+    """
+
+    probe: Probe = field(default_factory=lambda: Probe("cylindrical", radius=50e-6, length=5e-3))
+    ion: str | float = "Ar"
+    ion_collection: str = "auto"
+    electrons: str = "maxwellian"
+    T_i: float = 0.026
+    bohm_factor: float | str = float(np.exp(-0.5))
+    sheath_expansion: bool = True
+    electron_sheath_expansion: bool = False
+    quasi_neutral: bool = False
+    ion_mass_kg: float | None = None
+
+    def __post_init__(self):
+        if not isinstance(self.probe, Probe):
+            raise ValueError("probe must be a bayesprobe.Probe")
+        if self.ion_collection not in ION_THEORIES:
+            raise ValueError(f"ion_collection must be one of {', '.join(ION_THEORIES)}, got {self.ion_collection!r}")
+        if self.ion_collection in ("oml", "abr") and self.probe.geometry == "planar":
+            raise ValueError(f"ion_collection {self.ion_collection!r} needs a cylindrical or spherical probe; "
+                             "use thin-sheath or auto for planar probes")
+        if self.electrons not in ELECTRON_MODELS:
+            raise ValueError(f"electrons must be one of {', '.join(ELECTRON_MODELS)}, got {self.electrons!r}")
+        if not (np.isfinite(self.T_i) and self.T_i > 0):
+            raise ValueError(f"T_i must be a positive temperature in eV, got {self.T_i!r}")
+        object.__setattr__(self, "bohm_factor", _bohm_factor(self.bohm_factor))
+        if self.ion_mass_kg is None:
+            object.__setattr__(self, "ion_mass_kg", _ion_mass(self.ion))
+        elif not (np.isfinite(self.ion_mass_kg) and self.ion_mass_kg > 0):
+            raise ValueError("ion_mass_kg must be positive")
+
+    def with_(self, **changes) -> "ModelConfig":
+        """A copy with some fields changed (``ion_mass_kg`` is recomputed if ``ion`` changes)."""
+        if "ion" in changes and "ion_mass_kg" not in changes:
+            changes["ion_mass_kg"] = None
+        return replace(self, **changes)
+
+    def to_dict(self) -> dict:
+        return {"probe": self.probe.to_dict(), "ion": self.ion, "ion_mass_kg": self.ion_mass_kg,
+                "ion_collection": self.ion_collection, "electrons": self.electrons,
+                "T_i_eV": self.T_i, "bohm_factor": self.bohm_factor,
+                "sheath_expansion": self.sheath_expansion,
+                "electron_sheath_expansion": self.electron_sheath_expansion,
+                "quasi_neutral": self.quasi_neutral}
+
+    @classmethod
+    def from_dict(cls, d: Mapping) -> "ModelConfig":
+        return cls(probe=Probe.from_dict(d["probe"]), ion=d["ion"], ion_mass_kg=d.get("ion_mass_kg"),
+                   ion_collection=d["ion_collection"], electrons=d["electrons"], T_i=d["T_i_eV"],
+                   bohm_factor=d["bohm_factor"], sheath_expansion=d["sheath_expansion"],
+                   electron_sheath_expansion=d.get("electron_sheath_expansion", False),
+                   quasi_neutral=d["quasi_neutral"])
+
+
+def plasma_parameter_names(config: ModelConfig) -> tuple[str, ...]:
+    """Names of the plasma parameters the model needs, in canonical order."""
+    names = ["n_e"]
+    if not config.quasi_neutral:
+        names.append("n_i")
+    names += ["T_e"] if config.electrons == "maxwellian" else ["T_e_cold", "T_e_hot", "hot_fraction"]
+    names.append("V_p")
+    return tuple(names)
+
+
+def _column(params: Mapping, name: str):
+    try:
+        value = np.asarray(params[name], dtype=float)
+    except KeyError:
+        raise ValueError(f"missing parameter {name!r}") from None
+    return value[..., None] if value.ndim >= 1 else value
+
+
+def _validate(params: Mapping, config: ModelConfig):
+    for name in plasma_parameter_names(config):
+        if name == "V_p":
+            continue
+        v = np.asarray(params[name], float) if name in params else None
+        if v is None:
+            if name == "n_i":
+                continue
+            raise ValueError(f"missing parameter {name!r}")
+        if name == "hot_fraction":
+            if np.any(~np.isfinite(v)) or np.any((v < 0) | (v > 1)):
+                raise ValueError("hot_fraction must lie in [0, 1]")
+        elif np.any(~np.isfinite(v)) or np.any(v <= 0):
+            raise ValueError(f"{name} must be positive and finite")
+
+
+def probe_current(V, params: Mapping, config: ModelConfig, *, validate: bool = True):
+    """Net probe current I = I_e - I_i (electron current positive), in A.
+
+    Parameters
+    ----------
+    V : array_like, shape (n,)
+        Probe bias in V.
+    params : mapping of name -> scalar or array of shape (k,)
+        Plasma parameters (see the module docstring); ``n_i`` defaults to ``n_e``.
+    config : ModelConfig
+    validate : bool
+        Check parameter values (the sampler turns this off on its hot path; its
+        prior already keeps parameters in range).
+
+    Returns
+    -------
+    ndarray
+        Shape (n,) for scalar parameters, (k, n) for parameters of shape (k,).
+    """
+    if validate:
+        _validate(params, config)
+    V = np.asarray(V, dtype=float)
+    n_e = _column(params, "n_e")
+    n_i = _column(params, "n_i") if ("n_i" in params and not config.quasi_neutral) else n_e
+    V_p = _column(params, "V_p")
+    probe = config.probe
+    if config.electrons == "maxwellian":
+        T_e = _column(params, "T_e")
+        I_e = electron_current(V, V_p, n_e, T_e, probe, sheath_expansion=config.electron_sheath_expansion)
+        T_s = T_e
+    else:
+        T_c = _column(params, "T_e_cold")
+        T_h = _column(params, "T_e_hot")
+        a = _column(params, "hot_fraction")
+        I_e = electron_current(V, V_p, n_e, T_c, probe, hot_fraction=a, T_hot=T_h,
+                               sheath_expansion=config.electron_sheath_expansion)
+        T_s = screening_temperature(T_c, T_h, a)
+    I_i = ion_current(V, V_p, n_i, T_s, probe, config.ion_mass_kg, theory=config.ion_collection,
+                      n_e=n_e, T_i=config.T_i, bohm_factor=config.bohm_factor,
+                      sheath_expansion=config.sheath_expansion)
+    return I_e - I_i
+
+
+def effective_temperature(params: Mapping, config: ModelConfig):
+    """Two thirds of the mean electron energy, in eV (equals T_e for a Maxwellian)."""
+    if config.electrons == "maxwellian":
+        return np.asarray(params["T_e"], float)
+    a = np.asarray(params["hot_fraction"], float)
+    return (1 - a) * np.asarray(params["T_e_cold"], float) + a * np.asarray(params["T_e_hot"], float)
+
+
+def floating_potential(params: Mapping, config: ModelConfig, *, iterations: int = 60):
+    """Floating potential (V) of every parameter set: the root of the full model I(V) = 0.
+
+    Vectorised bisection on [V_p - 80 T_max, V_p]; the net current is negative at
+    the lower end (ion saturation) and positive at V_p for any physical plasma.
+    Returns NaN where no sign change exists in that bracket.
+    """
+    V_p = np.atleast_1d(np.asarray(params["V_p"], float))
+    T_max = effective_temperature(params, config) if config.electrons == "maxwellian" else \
+        np.asarray(params["T_e_hot"], float)
+    T_max = np.broadcast_to(np.atleast_1d(T_max), V_p.shape)
+    lo = V_p - 80.0 * T_max
+    hi = V_p.copy()
+    single = {k: np.atleast_1d(np.asarray(v, float)) for k, v in params.items()}
+
+    def current_at(v):
+        # evaluate one voltage per parameter set: diagonal of the (k, k) problem, done as (k, 1)
+        return probe_current(np.zeros(1), {k: x for k, x in single.items()} | {"V_p": V_p - v}, config,
+                             validate=False)[..., 0]
+
+    f_lo = current_at(lo)
+    f_hi = current_at(hi)
+    ok = (f_lo < 0) & (f_hi > 0)
+    for _ in range(iterations):
+        mid = 0.5 * (lo + hi)
+        f_mid = current_at(mid)
+        neg = f_mid < 0
+        lo = np.where(neg, mid, lo)
+        hi = np.where(neg, hi, mid)
+    out = np.where(ok, 0.5 * (lo + hi), np.nan)
+    return out if np.ndim(params["V_p"]) else out[0]

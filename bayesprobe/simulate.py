@@ -1,0 +1,123 @@
+"""Synthetic sweeps with known truth, drawn from the forward model.
+
+The noise model is a floor plus a part proportional to the local current,
+sigma_i^2 = sigma_floor^2 + (sigma_rel * |I_i|)^2, optionally with a fraction of
+heavy-tailed outliers (Student-t with 2 degrees of freedom, scaled by
+``outlier_scale`` times the local sigma). Everything is reproducible from ``seed``.
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from .model import ModelConfig, floating_potential, plasma_parameter_names, probe_current
+from .physics.geometry import Probe
+from .sweep import Sweep
+
+__all__ = ["SimulatedSweep", "simulate", "DEFAULT_TRUTH"]
+
+#: defaults of ``simulate``: an argon plasma seen by a thin tungsten wire
+DEFAULT_TRUTH = {"n_e": 1e16, "T_e": 3.0, "V_p": 12.0}
+
+
+@dataclass
+class SimulatedSweep:
+    """A synthetic sweep and everything used to make it."""
+
+    sweep: Sweep
+    truth: dict
+    config: ModelConfig
+    noise: dict = field(default_factory=dict)
+
+    def truth_record(self) -> dict:
+        """JSON-ready record of the truth, the model settings and the noise."""
+        return {"schema": "bayesprobe.truth/1", "synthetic": True,
+                "parameters": {k: float(v) for k, v in self.truth.items()},
+                "units": {"n_e": "m^-3", "n_i": "m^-3", "T_e": "eV", "T_e_cold": "eV", "T_e_hot": "eV",
+                          "hot_fraction": "1", "V_p": "V", "V_f": "V"},
+                "model": self.config.to_dict(), "noise": self.noise,
+                "n_points": self.sweep.n_points}
+
+
+def simulate(truth: dict | None = None, *, config: ModelConfig | None = None,
+             voltage=None, v_min: float | None = None, v_max: float | None = None, n_points: int = 500,
+             noise_floor: float | None = None, noise_rel: float = 0.01,
+             outlier_fraction: float = 0.0, outlier_scale: float = 20.0,
+             seed: int | None = 0, sweep_id: str = "simulated") -> SimulatedSweep:
+    """Draw one synthetic sweep from the forward model.
+
+    Parameters
+    ----------
+    truth : dict, optional
+        Plasma parameters (see :mod:`bayesprobe.model`); missing ones default to
+        :data:`DEFAULT_TRUTH` (``n_i`` defaults to ``n_e``).
+    config : ModelConfig, optional
+        Probe, ion and theories; default an argon plasma and a 50 um x 5 mm wire.
+    voltage : array_like, optional
+        Bias points in V. Default: ``n_points`` evenly spaced from ``v_min``
+        (default V_p - 12 T_e - 20 V, deep in ion saturation) to ``v_max``
+        (default V_p + 3 T_e, into electron saturation).
+    noise_floor : float, optional
+        Constant noise sd in A; default 1e-3 of the electron saturation current at V_p.
+    noise_rel : float
+        Proportional noise sd as a fraction of |I|.
+    outlier_fraction, outlier_scale : float
+        Fraction of points replaced by heavy-tailed (Student-t, 2 dof) noise of
+        ``outlier_scale`` times the local sd.
+    seed : int
+        Random seed (``numpy.random.default_rng``).
+    """
+    config = config or ModelConfig()
+    params = dict(DEFAULT_TRUTH)
+    if config.electrons == "bi-maxwellian":
+        params.pop("T_e")
+        params.update({"T_e_cold": 2.0, "T_e_hot": 10.0, "hot_fraction": 0.05})
+    params.update(truth or {})
+    unknown = set(params) - set(plasma_parameter_names(config)) - {"n_i", "T_e"}
+    if unknown:
+        raise ValueError(f"unknown truth parameter(s) {sorted(unknown)} for this model; "
+                         f"expected {', '.join(plasma_parameter_names(config))}")
+    if config.electrons == "bi-maxwellian":
+        params.pop("T_e", None)
+    if "n_i" not in params or config.quasi_neutral:
+        params["n_i"] = params["n_e"]
+    for name in ("noise_rel", "outlier_fraction", "outlier_scale"):
+        val = locals()[name]
+        if not np.isfinite(val) or val < 0:
+            raise ValueError(f"{name} must be a non-negative number, got {val!r}")
+    if outlier_fraction > 0.5:
+        raise ValueError("outlier_fraction must be at most 0.5")
+    if not isinstance(n_points, (int, np.integer)) or n_points < 2:
+        raise ValueError(f"n_points must be an integer >= 2, got {n_points!r}")
+
+    T_scale = params.get("T_e", params.get("T_e_cold"))
+    if voltage is None:
+        lo = params["V_p"] - 12.0 * T_scale - 20.0 if v_min is None else float(v_min)
+        hi = params["V_p"] + 3.0 * T_scale if v_max is None else float(v_max)
+        if not hi > lo:
+            raise ValueError(f"v_max ({hi}) must exceed v_min ({lo})")
+        voltage = np.linspace(lo, hi, n_points)
+    voltage = np.sort(np.asarray(voltage, float))
+    clean = probe_current(voltage, params, config)
+    if noise_floor is None:
+        I_ref = abs(float(probe_current(np.array([params["V_p"]]), params, config)[0]))
+        noise_floor = 1e-3 * I_ref
+    if not np.isfinite(noise_floor) or noise_floor < 0:
+        raise ValueError(f"noise_floor must be a non-negative current in A, got {noise_floor!r}")
+    rng = np.random.default_rng(seed)
+    sigma = np.sqrt(noise_floor**2 + (noise_rel * clean) ** 2)
+    noisy = clean + sigma * rng.standard_normal(voltage.size)
+    n_out = 0
+    if outlier_fraction > 0:
+        mask = rng.random(voltage.size) < outlier_fraction
+        n_out = int(mask.sum())
+        noisy[mask] = clean[mask] + outlier_scale * sigma[mask] * rng.standard_t(2, size=n_out)
+    truth_out = {k: float(v) for k, v in params.items()}
+    truth_out["V_f"] = float(floating_potential(params, config))
+    sweep = Sweep(voltage, noisy, sweep_id=sweep_id, source="simulated",
+                  notes=["synthetic sweep drawn from the bayesprobe forward model"])
+    noise = {"noise_floor_A": float(noise_floor), "noise_rel": float(noise_rel),
+             "outlier_fraction": float(outlier_fraction), "outlier_scale": float(outlier_scale),
+             "n_outliers": n_out, "seed": seed}
+    return SimulatedSweep(sweep=sweep, truth=truth_out, config=config, noise=noise)
