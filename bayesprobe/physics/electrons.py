@@ -89,11 +89,18 @@ def maxwellian_electron_current(V, V_p, n_e, T_e, probe: Probe, *, sheath_expans
     """
     x = (V - V_p) / T_e
     I_es = electron_saturation_current(n_e, T_e, probe.area)
-    lam = None
-    if sheath_expansion and probe.geometry == "planar":
-        lam = np.sqrt(EPS0 * T_e / (n_e * E_CHARGE))
-    growth = attracted_factor(x, probe.geometry, probe_radius=probe.radius, debye_length=lam)
-    return I_es * np.where(x <= 0.0, np.exp(np.minimum(x, 0.0)), growth)
+    shape = np.broadcast_shapes(np.shape(x), np.shape(I_es))
+    factor = np.broadcast_to(np.exp(np.minimum(x, 0.0)), shape).copy()
+    above = np.broadcast_to(x > 0.0, shape)
+    if probe.geometry == "planar" and not sheath_expansion:
+        pass                                   # flat saturation: exp(0) = 1 already
+    elif np.any(above):
+        lam = None
+        if sheath_expansion and probe.geometry == "planar":
+            lam = np.broadcast_to(np.sqrt(EPS0 * T_e / (np.maximum(n_e, 1e-300) * E_CHARGE)), shape)[above]
+        factor[above] = attracted_factor(np.broadcast_to(x, shape)[above], probe.geometry,
+                                         probe_radius=probe.radius, debye_length=lam)
+    return I_es * factor
 
 
 def electron_current(V, V_p, n_e, T_e, probe: Probe, *, hot_fraction=None, T_hot=None,

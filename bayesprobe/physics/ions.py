@@ -89,7 +89,8 @@ def thin_sheath_ion_current(V, V_p, n_i, T_e, probe: Probe, ion_mass, *, n_e=Non
     if sheath_expansion:
         n_for_debye = n_i if n_e is None else n_e
         lam = np.sqrt(EPS0 * T_e / (n_for_debye * E_CHARGE))
-        s = _CHILD * lam * (np.maximum(V_p - V, 0.0) / T_e) ** 0.75
+        u = np.sqrt(np.maximum(V_p - V, 0.0) / T_e)
+        s = _CHILD * lam * (u * np.sqrt(u))              # (V0/T_e)^(3/4) via two square roots
         ratio = 1.0 + s / probe.radius
         I_B = I_B * (ratio if probe.geometry == "cylindrical" else ratio * ratio)
     return I_B * _repelled(V, V_p, T_i)
@@ -101,7 +102,10 @@ def oml_ion_current(V, V_p, n_i, probe: Probe, ion_mass, *, T_i=0.026):
         raise ValueError("OML ion collection applies to cylindrical and spherical probes, not planar")
     I_th = E_CHARGE * n_i * probe.area * np.sqrt(E_CHARGE * T_i / (2.0 * np.pi * ion_mass))
     chi = (V_p - V) / T_i
-    return I_th * np.where(chi >= 0.0, attracted_factor(chi, probe.geometry), np.exp(np.minimum(chi, 0.0)))
+    factor = np.exp(np.minimum(chi, 0.0))
+    attracted = chi > 0.0
+    factor[attracted] = attracted_factor(chi[attracted], probe.geometry)
+    return I_th * factor
 
 
 def abr_ion_current(V, V_p, n_i, T_e, probe: Probe, ion_mass, *, n_e=None, T_i=0.026):

@@ -1,0 +1,53 @@
+"""Quantities derived from every posterior draw, so their intervals carry the correlations."""
+from __future__ import annotations
+
+import numpy as np
+
+from .model import ModelConfig, effective_temperature, floating_potential
+from .physics.constants import E_CHARGE, EPS0, M_E
+
+__all__ = ["DERIVED_UNITS", "derived_quantities"]
+
+#: name -> (unit, description)
+DERIVED_UNITS = {
+    "V_f": ("V", "floating potential (root of the full model)"),
+    "Vp_minus_Vf_over_Te": ("1", "(V_p - V_f) / T_e (T_e_eff for two temperatures)"),
+    "T_e_eff": ("eV", "effective temperature, two thirds of the mean electron energy"),
+    "T_e_screen": ("eV", "screening temperature (harmonic, density-weighted)"),
+    "debye_length": ("m", "electron Debye length (screening temperature)"),
+    "r_p_over_debye": ("1", "probe radius / Debye length"),
+    "omega_pe": ("rad/s", "electron plasma frequency"),
+    "omega_pi": ("rad/s", "ion plasma frequency"),
+    "bohm_speed": ("m/s", "Bohm speed"),
+    "electron_mean_speed": ("m/s", "mean speed sqrt(8 e T_e/(pi m_e)) (T_e_eff)"),
+    "n_i_over_n_e": ("1", "ion / electron density (consistency check)"),
+}
+
+
+def derived_quantities(phys: dict, config: ModelConfig) -> dict:
+    """Derived quantities for every draw; ``phys`` maps names to (k,) arrays."""
+    out = {}
+    n_e = np.asarray(phys["n_e"], float)
+    n_i = np.asarray(phys.get("n_i", n_e), float)
+    if config.electrons == "maxwellian":
+        T_s = np.asarray(phys["T_e"], float)
+        T_eff = T_s
+    else:
+        a = np.asarray(phys["hot_fraction"], float)
+        T_s = 1.0 / ((1 - a) / phys["T_e_cold"] + a / phys["T_e_hot"])
+        T_eff = effective_temperature(phys, config)
+        out["T_e_eff"] = T_eff
+        out["T_e_screen"] = T_s
+    V_f = floating_potential(phys, config)
+    out["V_f"] = V_f
+    out["Vp_minus_Vf_over_Te"] = (phys["V_p"] - V_f) / T_eff
+    lam = np.sqrt(EPS0 * T_s / (n_e * E_CHARGE))
+    out["debye_length"] = lam
+    out["r_p_over_debye"] = config.probe.radius / lam
+    out["omega_pe"] = np.sqrt(n_e * E_CHARGE**2 / (EPS0 * M_E))
+    out["omega_pi"] = np.sqrt(n_i * E_CHARGE**2 / (EPS0 * config.ion_mass_kg))
+    out["bohm_speed"] = np.sqrt(E_CHARGE * T_s / config.ion_mass_kg)
+    out["electron_mean_speed"] = np.sqrt(8 * E_CHARGE * T_eff / (np.pi * M_E))
+    if not config.quasi_neutral:
+        out["n_i_over_n_e"] = n_i / n_e
+    return out

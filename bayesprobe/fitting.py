@@ -1,0 +1,257 @@
+"""``fit``: one sweep in, a calibrated posterior out. Orchestrates physics and inference."""
+from __future__ import annotations
+
+import math
+import time
+from dataclasses import asdict
+
+import numpy as np
+
+from .derived import derived_quantities
+from .inference.arviz_adapter import build_inference_data
+from .inference.optimize import find_map
+from .inference.posterior import LogPosterior, default_parameters
+from .inference.sampler import SamplerSettings, run_ensembles
+from .model import ELECTRON_MODELS, ModelConfig
+from .physics.geometry import Probe
+from .result import FitResult, units_for
+from .sweep import Sweep
+
+__all__ = ["fit", "make_config", "N_STORED_DRAWS"]
+
+#: posterior draws kept in the result (thinned evenly from the converged chains)
+N_STORED_DRAWS = 4000
+MODEL_CHOICES = ELECTRON_MODELS + ("auto",)
+
+
+def make_config(*, probe=None, ion="Ar", ion_mass=None, ion_collection="auto", electrons="maxwellian",
+                quasi_neutral=False, T_i=0.026, bohm_factor=float(np.exp(-0.5)), sheath_expansion=True,
+                electron_sheath_expansion=False) -> ModelConfig:
+    """Build a :class:`ModelConfig` from plain options (``ion_mass`` in u overrides ``ion``)."""
+    if probe is None:
+        probe = Probe("cylindrical", radius=50e-6, length=5e-3)
+    if not isinstance(probe, Probe):
+        raise ValueError("probe must be a bayesprobe.Probe, e.g. Probe('cylindrical', radius=5e-5, length=5e-3)")
+    return ModelConfig(probe=probe, ion=ion if ion_mass is None else float(ion_mass),
+                       ion_collection=ion_collection, electrons=electrons, quasi_neutral=quasi_neutral,
+                       T_i=T_i, bohm_factor=bohm_factor, sheath_expansion=sheath_expansion,
+                       electron_sheath_expansion=electron_sheath_expansion)
+
+
+def _as_sweep(voltage, current, sign):
+    if isinstance(voltage, Sweep):
+        return voltage
+    from .io import sweep_from_arrays
+    if current is None:
+        raise ValueError("give voltage and current arrays, or a Sweep")
+    return sweep_from_arrays(voltage, current, sign=sign)
+
+
+def _noise_start(V, I):
+    """Rough noise level: scaled median absolute second difference in the lowest third."""
+    k = max(10, V.size // 3)
+    d2 = np.diff(I[:k], 2)
+    s = 1.4826 * np.median(np.abs(d2 - np.median(d2))) / math.sqrt(6.0) if d2.size else 0.0
+    return max(s, 1e-6 * float(np.max(np.abs(I))))
+
+
+def _classical(V, I, config):
+    from .classical import classical_analysis
+    try:
+        return classical_analysis(V, I, config)
+    except Exception as exc:  # the start must never kill a fit; the sampler does the real work
+        return exc
+
+
+def _starts(params, cls, V, I, config):
+    """Several starting points in z (classical estimate and perturbations)."""
+    v_min, v_max = float(V[0]), float(V[-1])
+    T0, Vp0, ne0, ni0 = 2.0, v_min + 0.8 * (v_max - v_min), None, None
+    if not isinstance(cls, Exception):
+        if np.isfinite(cls.T_e) and 0.1 < cls.T_e < 100:
+            T0 = float(cls.T_e)
+        if np.isfinite(cls.V_p) and v_min < cls.V_p < v_max + 0.5 * (v_max - v_min):
+            Vp0 = float(cls.V_p)
+        ne0 = cls.n_e if np.isfinite(cls.n_e) and 1e12 < cls.n_e < 1e21 else None
+        ni0 = cls.n_i if np.isfinite(cls.n_i) and 1e12 < cls.n_i < 1e21 else None
+    from .physics.electrons import electron_saturation_current
+    if ne0 is None:
+        I_top = float(np.max(I))
+        ne0 = float(np.clip(I_top / electron_saturation_current(1.0, T0, config.probe.area), 1e13, 1e20))
+    if ni0 is None:
+        ni0 = ne0
+    sig0 = _noise_start(V, I)
+    starts = []
+    for fT, dV in ((1.0, 0.0), (0.6, 0.0), (1.6, 0.0), (1.0, -1.0), (1.0, 1.0)):
+        T = T0 * fT
+        vals = {"n_e": ne0, "n_i": ni0, "T_e": T, "T_e_cold": T, "T_e_hot": 5 * T, "hot_fraction": 0.02,
+                "V_p": Vp0 + dV * T0, "sigma_floor": sig0, "sigma_rel": 0.01}
+        starts.append(params.to_z({n: vals[n] for n in params.names}))
+    return np.array(starts)
+
+
+def _fit_one(sweep: Sweep, config: ModelConfig, *, credible_level, priors, student_nu, seed, settings,
+             progress, cls) -> FitResult:
+    V, I = sweep.voltage, sweep.current
+    params = default_parameters(config, V, I).with_priors(priors)
+    logpost = LogPosterior(V, I, config, params, student_nu=student_nu)
+    t0 = time.perf_counter()
+    starts = _starts(params, cls, V, I, config)
+    mp = find_map(logpost, starts)
+    t_map = time.perf_counter() - t0
+    ss = np.random.SeedSequence(seed)
+    s_sampler, s_ppc = ss.spawn(2)
+    run = run_ensembles(logpost, mp.z, mp.cov, settings=settings, seed=s_sampler, progress=progress)
+
+    # thin evenly to about N_STORED_DRAWS draws, chain = independent ensemble
+    E, S, W, d = run.chains.shape
+    thin = max(1, int(S * W * E / N_STORED_DRAWS))
+    Z = run.chains[:, ::thin]                           # (E, S', W, d)
+    Sp = Z.shape[1]
+    Zflat = Z.reshape(-1, d)
+    t_post = time.perf_counter()
+    phys = params.to_physical(Zflat)
+    derived = derived_quantities(phys, config)
+    loglik = logpost.pointwise_loglik(Zflat)
+    rng = np.random.default_rng(s_ppc)
+    ppc = logpost.posterior_predictive(Zflat, rng)
+    t_post = time.perf_counter() - t_post
+
+    def cd(x):  # (E*S'*W,) -> (chain=E, draw=S'*W)
+        return np.asarray(x).reshape(E, Sp * W, *np.shape(x)[1:])
+
+    draws = {n: cd(v) for n, v in phys.items()}
+    draws.update({n: cd(v) for n, v in derived.items()})
+    units = units_for(list(draws), params)
+
+    from .inference.arviz_adapter import ess_bulk, rhat_rank
+    ess_all, rhat_all = {}, {}
+    for n, x in draws.items():
+        if np.all(np.isfinite(x)) and np.ptp(x) > 0:
+            ess_all[n] = ess_bulk(x)
+            rhat_all[n] = rhat_rank(x)
+    # sampled parameters: the run's own diagnostics over the full kept chains
+    for j, n in enumerate(params.names):
+        ess_all[n] = float(run.ess[j])
+        rhat_all[n] = float(run.rhat[j])
+    reported = [n for n in draws if n in ess_all]
+    ess_min = float(min(ess_all[n] for n in reported))
+    rhat_max = float(max(rhat_all[n] for n in reported))
+    converged = bool(run.converged and ess_min >= settings.ess_min and rhat_max <= settings.rhat_max)
+    reasons = list(run.reasons)
+    if run.converged and not converged:
+        reasons.append(f"derived quantities: ESS {ess_min:.0f}, R-hat {rhat_max:.4f}")
+
+    diagnostics = {
+        "r_hat_max": rhat_max, "ess_bulk_min": ess_min, "n_draws": int(E * Sp * W), "converged": converged,
+        "criteria": {"tau_multiple_min": settings.min_tau_multiple, "r_hat_max": settings.rhat_max,
+                     "ess_bulk_min": settings.ess_min},
+        "unmet": reasons, "tau_max": float(np.max(run.tau)),
+        "tau": {n: float(t) for n, t in zip(params.names, run.tau)},
+        "ess_bulk": ess_all, "r_hat": rhat_all,
+        "n_steps": int(run.n_steps), "burn_in": int(run.burn), "thin": int(thin),
+        "n_ensembles": int(E), "n_walkers": int(W), "acceptance": run.acceptance,
+        "map_hessian_ok": bool(mp.hessian_ok), "history": run.history,
+        "timings_s": {"map": t_map, **run.timings, "posterior_processing": t_post},
+    }
+
+    coords = {"point": np.arange(V.size)}
+    dims = {"current": ["point"]}
+    sample_stats = {"lp": cd(run.log_prob[:, ::thin].reshape(-1))}
+    idata = build_inference_data(
+        posterior=draws,
+        log_likelihood={"current": cd(loglik)},
+        observed_data={"current": I},
+        posterior_predictive={"current": cd(ppc)},
+        sample_stats=sample_stats,
+        constant_data={"voltage": V},
+        coords=coords, dims={"current": ["point"], "voltage": ["point"]},
+        attrs={"bayesprobe_model": config.electrons, "parameter_order": ",".join(params.names),
+               "units": ";".join(f"{k}={v}" for k, v in units.items()),
+               "credible_level": credible_level, "thin_steps": thin},
+    )
+    del dims
+
+    cls_dict = cls.to_dict() if not isinstance(cls, Exception) else {"error": str(cls)}
+    map_phys = {n: float(v[0]) for n, v in params.to_physical(mp.z[None]).items()}
+    return FitResult(model=config.electrons, config=config, voltage=V, current=I, draws=draws, units=units,
+                     parameter_order=params.names, priors=params.describe(), diagnostics=diagnostics,
+                     classical=cls_dict, credible_level=credible_level, idata=idata,
+                     sweep_info={"source": sweep.source, "sweep_id": sweep.sweep_id, "n_points": sweep.n_points,
+                                 "notes": list(sweep.notes), "sign_flipped": sweep.sign_flipped},
+                     map_estimate=map_phys, student_nu=student_nu, seed=seed,
+                     settings=asdict(settings))
+
+
+def fit(voltage, current=None, *, probe: Probe | None = None, ion="Ar", ion_mass=None,
+        ion_collection="auto", model="maxwellian", credible_level=0.9, priors=None, student_nu=None,
+        quasi_neutral=False, T_i=0.026, bohm_factor=float(np.exp(-0.5)), seed: int | None = 0,
+        sampler: SamplerSettings | None = None, progress=None, sign="auto",
+        config: ModelConfig | None = None) -> FitResult:
+    """Fit the whole characteristic of one sweep and return its posterior.
+
+    Parameters
+    ----------
+    voltage, current : array_like or Sweep
+        Bias (V) and current (A, electron current positive; the other convention is
+        detected and flipped unless ``sign`` forces it), or a :class:`Sweep`.
+    probe : Probe
+        Probe shape and size (default: a 50 um x 5 mm cylinder).
+    ion, ion_mass : str, float
+        Ion species name or mass in u.
+    ion_collection : {"thin-sheath", "oml", "abr", "auto"}
+    model : {"maxwellian", "bi-maxwellian", "auto"}
+        Electron model; ``auto`` fits both and selects by PSIS-LOO.
+    credible_level : float
+        Probability of the reported equal-tailed intervals.
+    priors : dict, optional
+        ``{name: {"kind": ..., "lower": ..., "upper": ...}}`` overrides of the defaults.
+    student_nu : float, optional
+        Use a Student-t likelihood with this many degrees of freedom (outliers).
+    quasi_neutral : bool
+        Tie n_i to n_e instead of fitting both.
+    seed : int
+        Makes the run reproducible bit for bit.
+    sampler : SamplerSettings, optional
+        Ensembles, walkers, step budget and convergence thresholds.
+    config : ModelConfig, optional
+        A complete model configuration (overrides the individual physics options).
+
+    Returns
+    -------
+    FitResult
+    """
+    if not (isinstance(credible_level, (int, float)) and 0 < credible_level < 1):
+        raise ValueError(f"credible_level must lie strictly between 0 and 1, got {credible_level!r}")
+    if model not in MODEL_CHOICES:
+        raise ValueError(f"model must be one of {', '.join(MODEL_CHOICES)}, got {model!r}")
+    if student_nu is not None and not (np.isfinite(student_nu) and student_nu > 0):
+        raise ValueError(f"student_nu must be a positive number, got {student_nu!r}")
+    if seed is not None and not isinstance(seed, (int, np.integer)):
+        raise ValueError(f"seed must be an integer, got {seed!r}")
+    sweep = _as_sweep(voltage, current, sign)
+    if config is None:
+        config = make_config(probe=probe, ion=ion, ion_mass=ion_mass, ion_collection=ion_collection,
+                             quasi_neutral=quasi_neutral, T_i=T_i, bohm_factor=bohm_factor)
+    settings = sampler or SamplerSettings()
+    cls = _classical(sweep.voltage, sweep.current, config.with_(electrons="maxwellian"))
+    kinds = ELECTRON_MODELS if model == "auto" else (model,)
+    results = {}
+    for kind in kinds:
+        results[kind] = _fit_one(sweep, config.with_(electrons=kind), credible_level=credible_level,
+                                 priors=_priors_for(priors, kind), student_nu=student_nu, seed=seed,
+                                 settings=settings, progress=progress, cls=cls)
+    if len(results) == 1:
+        return results[kinds[0]]
+    from .comparison import compare_models
+    return compare_models(results)
+
+
+def _priors_for(priors, kind):
+    """Drop prior overrides that do not apply to this electron model (auto fits both)."""
+    if not priors:
+        return priors
+    single = {"T_e"}
+    double = {"T_e_cold", "T_e_hot", "hot_fraction"}
+    skip = double if kind == "maxwellian" else single
+    return {k: v for k, v in priors.items() if k not in skip}

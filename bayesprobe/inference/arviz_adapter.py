@@ -1,0 +1,60 @@
+"""Every call into arviz lives here, so a move to another arviz major version is one file.
+
+Written against the arviz 0.2x API (InferenceData, ``az.rhat``/``az.ess``/``az.loo``).
+"""
+from __future__ import annotations
+
+import warnings
+
+import numpy as np
+
+with warnings.catch_warnings():
+    warnings.filterwarnings("ignore", message=r"\s*ArviZ is undergoing", category=FutureWarning)
+    import arviz as az  # noqa: E402
+
+__all__ = ["az", "rhat_rank", "ess_bulk", "ess_tail", "build_inference_data", "loo", "compare",
+           "load_inference_data"]
+
+
+def _dataset(array_chain_draw: np.ndarray):
+    # arviz expects (chain, draw)
+    return az.convert_to_dataset({"x": array_chain_draw})
+
+
+def rhat_rank(chains: np.ndarray) -> float:
+    """Rank-normalised split R-hat of a (chain, draw) array."""
+    return float(az.rhat(_dataset(chains), method="rank")["x"].values)
+
+
+def ess_bulk(chains: np.ndarray) -> float:
+    return float(az.ess(_dataset(chains), method="bulk")["x"].values)
+
+
+def ess_tail(chains: np.ndarray) -> float:
+    return float(az.ess(_dataset(chains), method="tail")["x"].values)
+
+
+def build_inference_data(posterior: dict, *, log_likelihood: dict, observed_data: dict,
+                         posterior_predictive: dict, sample_stats: dict, constant_data: dict,
+                         coords: dict, dims: dict, attrs: dict):
+    """InferenceData with posterior, sample_stats, log_likelihood, observed_data, posterior_predictive."""
+    return az.from_dict(posterior=posterior, log_likelihood=log_likelihood, observed_data=observed_data,
+                        posterior_predictive=posterior_predictive, sample_stats=sample_stats,
+                        constant_data=constant_data, coords=coords, dims=dims, attrs=attrs)
+
+
+def loo(idata, *, reff: float | None = None):
+    """PSIS-LOO of the ``current`` log-likelihood (``reff`` from the posterior's ESS if None)."""
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", UserWarning)
+        return az.loo(idata, pointwise=True, reff=reff, var_name="current")
+
+
+def compare(models: dict):
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", UserWarning)
+        return az.compare(models, ic="loo", var_name="current")
+
+
+def load_inference_data(path):
+    return az.from_netcdf(path)

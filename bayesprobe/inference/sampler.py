@@ -1,0 +1,204 @@
+"""The MCMC driver: independent emcee ensembles run until the convergence criteria hold.
+
+Convergence criteria (all must hold, checked at chain-length doublings):
+
+1. every ensemble's kept chain is at least ``min_tau_multiple`` (default 50)
+   integrated autocorrelation times long (emcee's estimator, Goodman & Weare 2010;
+   Foreman-Mackey et al. 2013), and the largest tau changed by less than
+   ``tau_rel_change`` (20 %) since the previous check;
+2. rank-normalised split R-hat (Vehtari et al. 2021, Bayesian Analysis 16, 667)
+   is at most ``rhat_max`` (1.01), computed across the independent ensembles: each
+   ensemble contributes one chain, its walkers interleaved step by step. (The
+   walkers of one ensemble are coupled through the moves, so they are not
+   independent chains, and R-hat over them would not test anything.)
+3. the bulk effective sample size of every parameter is at least ``ess_min``
+   (1000), taking the smaller of arviz's multi-chain estimate over walkers and
+   the autocorrelation estimate n_kept * n_walkers * n_ensembles / tau.
+
+The first ``burn_fraction`` of every chain is discarded at each check. When the
+step budget ``max_steps`` is exhausted the result says ``converged = False``
+instead of pretending.
+"""
+from __future__ import annotations
+
+import sys
+import time
+from dataclasses import dataclass, field
+
+import emcee
+import numpy as np
+
+from .arviz_adapter import ess_bulk, rhat_rank
+
+__all__ = ["SamplerSettings", "SamplerRun", "run_ensembles", "start_positions"]
+
+
+@dataclass(frozen=True)
+class SamplerSettings:
+    n_ensembles: int = 2
+    n_walkers: int | None = None        # default max(4 d, 24), even
+    initial_steps: int = 600
+    max_steps: int = 20000
+    burn_fraction: float = 0.25
+    min_tau_multiple: float = 50.0
+    tau_rel_change: float = 0.2
+    rhat_max: float = 1.01
+    ess_min: float = 1000.0
+    start_scale: float = 1.5            # dispersion of starts, in Laplace sds
+
+    def walkers_for(self, ndim: int) -> int:
+        w = self.n_walkers or max(4 * ndim, 24)
+        return w + (w % 2)
+
+
+@dataclass
+class SamplerRun:
+    """Kept draws and diagnostics. ``chains`` has shape (ensemble, step, walker, d)."""
+
+    chains: np.ndarray
+    log_prob: np.ndarray
+    tau: np.ndarray
+    rhat: np.ndarray
+    ess: np.ndarray
+    converged: bool
+    n_steps: int
+    burn: int
+    acceptance: float
+    reasons: list = field(default_factory=list)
+    timings: dict = field(default_factory=dict)
+    history: list = field(default_factory=list)
+
+    @property
+    def flat(self) -> np.ndarray:
+        """All kept draws, shape (ensemble * step * walker, d)."""
+        return self.chains.reshape(-1, self.chains.shape[-1])
+
+
+def start_positions(logpost, center, cov, n, rng: np.random.Generator, scale: float = 1.5):
+    """n starting points from N(center, scale^2 cov), each with finite log-posterior."""
+    d = center.size
+    out = np.empty((0, d))
+    L = np.linalg.cholesky(cov + 1e-12 * np.eye(d))
+    for attempt in range(50):
+        s = scale if attempt < 25 else scale / (1 + attempt - 24)
+        cand = center + s * rng.standard_normal((2 * n, d)) @ L.T
+        good = cand[np.isfinite(logpost(cand))]
+        out = np.vstack([out, good])
+        if len(out) >= n:
+            return out[:n]
+    raise RuntimeError("could not find starting points with finite posterior density around the optimum")
+
+
+class _Timed:
+    """Wraps the log-posterior to count time spent in the model."""
+
+    def __init__(self, f):
+        self.f = f
+        self.seconds = 0.0
+        self.calls = 0
+
+    def __call__(self, Z):
+        t = time.perf_counter()
+        out = self.f(Z)
+        self.seconds += time.perf_counter() - t
+        self.calls += 1
+        return out
+
+
+def _diagnostics(chains, settings):
+    """tau (per ensemble, per param), rhat and ess for kept chains (E, S, W, d)."""
+    E, S, W, d = chains.shape
+    taus = np.empty((E, d))
+    for e in range(E):
+        taus[e] = emcee.autocorr.integrated_time(chains[e], tol=0, quiet=True)
+    rhat = np.empty(d)
+    ess = np.empty(d)
+    n_total = E * S * W
+    for j in range(d):
+        per_ens = chains[:, :, :, j].reshape(E, S * W)           # step-major interleave
+        rhat[j] = rhat_rank(per_ens)
+        per_walker = chains[:, :, :, j].transpose(0, 2, 1).reshape(E * W, S)
+        ess[j] = min(ess_bulk(per_walker), n_total / np.max(taus[:, j]))
+    return taus, rhat, ess
+
+
+def run_ensembles(logpost, center, cov, *, settings: SamplerSettings = SamplerSettings(),
+                  seed: int | np.random.SeedSequence | None = 0, progress: bool | None = None) -> SamplerRun:
+    """Run ``settings.n_ensembles`` independent emcee ensembles from dispersed starts until converged."""
+    ss = seed if isinstance(seed, np.random.SeedSequence) else np.random.SeedSequence(seed)
+    child = ss.spawn(settings.n_ensembles)
+    d = center.size
+    W = settings.walkers_for(d)
+    timed = _Timed(logpost)
+    samplers, states = [], []
+    for e in range(settings.n_ensembles):
+        rng = np.random.default_rng(child[e])
+        p0 = start_positions(logpost, center, cov, W, rng, settings.start_scale)
+        rs = np.random.RandomState(rng.integers(2**32 - 1))
+        sampler = emcee.EnsembleSampler(W, d, timed, vectorize=True,
+                                        moves=[(emcee.moves.DEMove(), 0.9), (emcee.moves.StretchMove(), 0.1)])
+        samplers.append(sampler)
+        states.append(emcee.State(p0, random_state=rs.get_state()))
+    if progress is None:
+        progress = sys.stderr.isatty()
+    bar = None
+    if progress:
+        from tqdm.auto import tqdm
+        bar = tqdm(total=settings.max_steps * settings.n_ensembles, desc="sampling", unit="step",
+                   leave=False, file=sys.stderr)
+    t0 = time.perf_counter()
+    t_diag = 0.0
+    n_steps = 0
+    target = settings.initial_steps
+    prev_tau = None
+    history = []
+    converged = False
+    reasons = []
+    while True:
+        todo = target - n_steps
+        for e, sampler in enumerate(samplers):
+            states[e] = sampler.run_mcmc(states[e], todo, progress=False)
+            if bar is not None:
+                bar.update(todo)
+        n_steps = target
+        td = time.perf_counter()
+        burn = int(settings.burn_fraction * n_steps)
+        chains = np.stack([s.get_chain(discard=burn) for s in samplers])
+        taus, rhat, ess = _diagnostics(chains, settings)
+        t_diag += time.perf_counter() - td
+        tau_max = float(np.max(taus))
+        kept = n_steps - burn
+        reasons = []
+        if kept < settings.min_tau_multiple * tau_max:
+            reasons.append(f"chain {kept} steps < {settings.min_tau_multiple:g} x tau ({tau_max:.1f})")
+        if prev_tau is not None and abs(tau_max - prev_tau) > settings.tau_rel_change * prev_tau:
+            reasons.append(f"tau still changing ({prev_tau:.1f} -> {tau_max:.1f})")
+        if prev_tau is None:
+            reasons.append("tau not yet checked at two lengths")
+        if np.max(rhat) > settings.rhat_max:
+            reasons.append(f"R-hat {np.max(rhat):.4f} > {settings.rhat_max}")
+        if np.min(ess) < settings.ess_min:
+            reasons.append(f"bulk ESS {np.min(ess):.0f} < {settings.ess_min:g}")
+        history.append({"steps": n_steps, "tau_max": tau_max, "rhat_max": float(np.max(rhat)),
+                        "ess_min": float(np.min(ess)), "unmet": list(reasons)})
+        prev_tau = tau_max
+        if not reasons:
+            converged = True
+            break
+        if n_steps >= settings.max_steps:
+            break
+        # next check: long enough to meet the tau criterion if tau is right, at least double
+        needed = int(np.ceil(settings.min_tau_multiple * tau_max / (1 - settings.burn_fraction) * 1.1))
+        target = min(settings.max_steps, max(2 * n_steps, needed))
+    if bar is not None:
+        bar.close()
+    burn = int(settings.burn_fraction * n_steps)
+    chains = np.stack([s.get_chain(discard=burn) for s in samplers])
+    log_prob = np.stack([s.get_log_prob(discard=burn) for s in samplers])
+    acc = float(np.mean([np.mean(s.acceptance_fraction) for s in samplers]))
+    total = time.perf_counter() - t0
+    return SamplerRun(chains=chains, log_prob=log_prob, tau=np.max(taus, axis=0), rhat=rhat, ess=ess,
+                      converged=converged, n_steps=n_steps, burn=burn, acceptance=acc, reasons=reasons,
+                      timings={"sampling_s": total - t_diag, "model_s": timed.seconds,
+                               "diagnostics_s": t_diag, "model_calls": timed.calls},
+                      history=history)

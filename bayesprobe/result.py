@@ -1,0 +1,210 @@
+"""FitResult: the posterior of one sweep, its summary, and how it writes itself."""
+from __future__ import annotations
+
+import json
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import numpy as np
+
+from .derived import DERIVED_UNITS
+from .model import ModelConfig
+
+__all__ = ["FitResult", "summarise_draws", "SUMMARY_SCHEMA", "MAIN_PARAMETERS"]
+
+SUMMARY_SCHEMA = "bayesprobe.summary/1"
+#: the parameters every summary reports first (single-temperature names)
+MAIN_PARAMETERS = ("T_e", "n_e", "n_i", "V_f", "V_p")
+
+
+def summarise_draws(x: np.ndarray, credible_level: float) -> dict:
+    """mean, sd, median and the equal-tailed credible interval of 1-D draws."""
+    x = np.asarray(x, float).ravel()
+    x = x[np.isfinite(x)]
+    if x.size == 0:
+        return {"mean": None, "sd": None, "median": None, "ci_low": None, "ci_high": None}
+    tail = 0.5 * (1.0 - credible_level)
+    lo, med, hi = np.quantile(x, [tail, 0.5, 1.0 - tail])
+    return {"mean": float(np.mean(x)), "sd": float(np.std(x, ddof=1)) if x.size > 1 else 0.0,
+            "median": float(med), "ci_low": float(lo), "ci_high": float(hi)}
+
+
+def _clean(obj):
+    """JSON-safe copy: numpy scalars to Python, NaN/inf to None."""
+    if isinstance(obj, dict):
+        return {str(k): _clean(v) for k, v in obj.items()}
+    if isinstance(obj, (list, tuple)):
+        return [_clean(v) for v in obj]
+    if isinstance(obj, np.ndarray):
+        return _clean(obj.tolist())
+    if isinstance(obj, (np.floating, float)):
+        v = float(obj)
+        return v if np.isfinite(v) else None
+    if isinstance(obj, (np.integer,)):
+        return int(obj)
+    if isinstance(obj, np.bool_):
+        return bool(obj)
+    return obj
+
+
+@dataclass
+class FitResult:
+    """Posterior of one sweep under one electron model.
+
+    Attributes
+    ----------
+    draws : dict name -> ndarray (chain, draw)
+        Physical-unit posterior draws of fitted and derived quantities.
+    units : dict name -> unit string
+    parameter_order : tuple of the fitted parameter names (sampler order)
+    idata : arviz.InferenceData
+        posterior, sample_stats, log_likelihood, observed_data, posterior_predictive.
+    """
+
+    model: str
+    config: ModelConfig
+    voltage: np.ndarray
+    current: np.ndarray
+    draws: dict
+    units: dict
+    parameter_order: tuple
+    priors: dict
+    diagnostics: dict
+    classical: dict
+    credible_level: float = 0.9
+    idata: object = None
+    sweep_info: dict = field(default_factory=dict)
+    map_estimate: dict = field(default_factory=dict)
+    comparison: dict | None = None
+    alternatives: dict = field(default_factory=dict)
+    student_nu: float | None = None
+    seed: int | None = None
+    settings: dict = field(default_factory=dict)
+
+    # ------------------------------------------------------------------ numbers
+    @property
+    def converged(self) -> bool:
+        return bool(self.diagnostics.get("converged", False))
+
+    def parameter_summary(self, credible_level: float | None = None) -> dict:
+        level = self.credible_level if credible_level is None else credible_level
+        out = {}
+        order = [n for n in MAIN_PARAMETERS if n in self.draws]
+        order += [n for n in self.parameter_order if n not in order]
+        order += [n for n in self.draws if n not in order]
+        for name in order:
+            entry = {"unit": self.units.get(name, "")}
+            entry.update(summarise_draws(self.draws[name], level))
+            out[name] = entry
+        return out
+
+    def correlations(self) -> dict:
+        names = [n for n in ("T_e", "T_e_cold", "T_e_hot", "hot_fraction", "n_e", "n_i", "V_p", "V_f")
+                 if n in self.draws]
+        X = np.vstack([np.log(self.draws[n].ravel()) if self.units.get(n) in ("m^-3", "eV", "1")
+                       and np.all(self.draws[n] > 0) else self.draws[n].ravel() for n in names])
+        good = np.all(np.isfinite(X), axis=0)
+        C = np.corrcoef(X[:, good]) if good.sum() > 2 else np.full((len(names), len(names)), np.nan)
+        return {a: {b: float(C[i, j]) for j, b in enumerate(names) if j != i} for i, a in enumerate(names)}
+
+    def summary(self) -> dict:
+        """The contract's ``summary.json`` content as a dict."""
+        from . import __version__
+        s = {
+            "schema": SUMMARY_SCHEMA,
+            "input": self.sweep_info.get("source", "array"),
+            "sweep_id": self.sweep_info.get("sweep_id"),
+            "model": self.model,
+            "credible_level": self.credible_level,
+            "parameters": self.parameter_summary(),
+            "correlations": self.correlations(),
+            "correlations_note": "Pearson correlations of the posterior draws; densities and "
+                                 "temperatures in log space",
+            "diagnostics": self.diagnostics,
+            "classical": self.classical,
+            "parameter_order": list(self.parameter_order),
+            "priors": self.priors,
+            "model_settings": self.config.to_dict(),
+            "likelihood": {"kind": "gaussian" if self.student_nu is None else "student-t",
+                           "student_nu": self.student_nu,
+                           "noise_model": "sd^2 = sigma_floor^2 + (sigma_rel * I_model)^2"},
+            "map_estimate": self.map_estimate,
+            "sweep": {k: v for k, v in self.sweep_info.items() if k != "source"},
+            "seed": self.seed,
+            "sampler_settings": self.settings,
+            "versions": _versions(__version__),
+        }
+        if self.comparison is not None:
+            s["comparison"] = self.comparison
+        return _clean(s)
+
+    def to_json(self, path=None) -> str:
+        text = json.dumps(self.summary(), indent=2, allow_nan=False)
+        if path is not None:
+            from .io import atomic_write_text
+            atomic_write_text(path, text + "\n")
+        return text
+
+    def to_netcdf(self, path):
+        """Write the full InferenceData (atomically)."""
+        path = Path(path)
+        tmp = path.with_name(f".{path.name}.tmp")
+        self.idata.to_netcdf(str(tmp))
+        tmp.replace(path)
+        return path
+
+    # ------------------------------------------------------------------ figures
+    def plot_fit(self, **kwargs):
+        from .plots import plot_fit
+        return plot_fit(self, **kwargs)
+
+    def plot_corner(self, **kwargs):
+        from .plots import plot_corner
+        return plot_corner(self, **kwargs)
+
+    def plot_trace(self, **kwargs):
+        from .plots import plot_trace
+        return plot_trace(self, **kwargs)
+
+    def table(self) -> str:
+        """A compact text table: parameter, median, credible interval, classical value."""
+        rows = [f"{'parameter':<14}{'unit':<7}{'median':>12}{'ci_low':>12}{'ci_high':>12}{'classical':>12}"]
+        ps = self.parameter_summary()
+        names = [n for n in ("T_e", "T_e_cold", "T_e_hot", "hot_fraction", "T_e_eff", "n_e", "n_i", "V_f", "V_p")
+                 if n in ps]
+        for n in names:
+            e = ps[n]
+            c = self.classical.get(n) if isinstance(self.classical, dict) else None
+            rows.append(f"{n:<14}{e['unit']:<7}{_fmt(e['median']):>12}{_fmt(e['ci_low']):>12}"
+                        f"{_fmt(e['ci_high']):>12}{_fmt(c):>12}")
+        return "\n".join(rows)
+
+
+def _fmt(v):
+    if v is None or (isinstance(v, float) and not np.isfinite(v)):
+        return "-"
+    return f"{v:.4g}"
+
+
+def _versions(own):
+    import platform
+    import sys
+
+    import emcee
+    import scipy
+    out = {"bayesprobe": own, "python": sys.version.split()[0], "numpy": np.__version__,
+           "scipy": scipy.__version__, "emcee": emcee.__version__, "platform": platform.platform()}
+    try:
+        from .inference.arviz_adapter import az
+        out["arviz"] = az.__version__
+    except Exception:  # pragma: no cover
+        pass
+    return out
+
+
+def units_for(names, parameters) -> dict:
+    units = {p.name: p.unit for p in parameters}
+    for n in names:
+        if n in DERIVED_UNITS:
+            units[n] = DERIVED_UNITS[n][0]
+    return units
