@@ -17,8 +17,10 @@ __all__ = ["az", "rhat_rank", "ess_bulk", "ess_tail", "build_inference_data", "l
 
 
 def _dataset(array_chain_draw: np.ndarray):
-    # arviz expects (chain, draw)
-    return az.convert_to_dataset({"x": array_chain_draw})
+    # arviz expects (chain, draw); short runs with many walkers legitimately have more chains than draws
+    with warnings.catch_warnings():
+        warnings.filterwarnings("ignore", message="More chains", category=UserWarning)
+        return az.convert_to_dataset({"x": array_chain_draw})
 
 
 def rhat_rank(chains: np.ndarray) -> float:

@@ -1,0 +1,344 @@
+"""Command line: ``bayesprobe {demo,fit,simulate,batch,report}``.
+
+Exit status: 0 success; 2 unusable input or options (one line on stderr, no
+traceback, nothing written); 3 the fit ran but did not converge (results written,
+``converged: false``).
+"""
+from __future__ import annotations
+
+import argparse
+import json
+import math
+import re
+import sys
+import tomllib
+from pathlib import Path
+
+from .errors import InputError
+
+EXIT_OK, EXIT_INPUT, EXIT_NOT_CONVERGED = 0, 2, 3
+
+_LENGTH_UNITS = {"m": 1.0, "cm": 1e-2, "mm": 1e-3, "um": 1e-6, "µm": 1e-6, "micron": 1e-6}
+_AREA_UNITS = {"m2": 1.0, "cm2": 1e-4, "mm2": 1e-6, "um2": 1e-12, "µm2": 1e-12}
+
+
+def _quantity(units: dict, what: str):
+    def parse(text: str) -> float:
+        m = re.fullmatch(r"\s*([-+0-9.eE]+)\s*([a-zµ0-9^]*)\s*", text)
+        if not m:
+            raise argparse.ArgumentTypeError(f"{what} must be a number with an optional unit, got {text!r}")
+        unit = m.group(2).replace("^", "")
+        try:
+            value = float(m.group(1))
+        except ValueError:
+            raise argparse.ArgumentTypeError(f"{what} must be a number, got {text!r}") from None
+        if unit and unit not in units:
+            raise argparse.ArgumentTypeError(f"unknown unit {unit!r} for {what}; use one of {', '.join(units)}")
+        value *= units.get(unit, 1.0)
+        if not math.isfinite(value) or value <= 0:
+            raise argparse.ArgumentTypeError(f"{what} must be positive, got {text!r}")
+        return value
+    return parse
+
+
+def _probability(text):
+    try:
+        p = float(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"must be a number between 0 and 1, got {text!r}") from None
+    if not 0 < p < 1:
+        raise argparse.ArgumentTypeError(f"must lie strictly between 0 and 1, got {text!r}")
+    return p
+
+
+def _positive_float(text):
+    try:
+        v = float(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"must be a number, got {text!r}") from None
+    if not (math.isfinite(v) and v > 0):
+        raise argparse.ArgumentTypeError(f"must be positive, got {text!r}")
+    return v
+
+
+def _nonneg_int(text):
+    try:
+        v = int(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"must be a whole number, got {text!r}") from None
+    if v < 0:
+        raise argparse.ArgumentTypeError(f"must not be negative, got {text!r}")
+    return v
+
+
+class _Parser(argparse.ArgumentParser):
+    """argparse that exits with status 2 and a single line on errors."""
+
+    def error(self, message):
+        raise InputError(f"{self.prog}: {message}")
+
+
+def _add_physics_options(p):
+    g = p.add_argument_group("probe and plasma")
+    g.add_argument("--geometry", choices=["planar", "cylindrical", "spherical"], default="cylindrical",
+                   help="probe shape (default cylindrical)")
+    g.add_argument("--radius", type=_quantity(_LENGTH_UNITS, "--radius"),
+                   help="probe radius; plain numbers in m, or with a unit: 50um, 0.1mm (default 50um for a wire)")
+    g.add_argument("--length", type=_quantity(_LENGTH_UNITS, "--length"),
+                   help="exposed wire length (cylinder); plain numbers in m, or 5mm (default 5mm)")
+    g.add_argument("--area", type=_quantity(_AREA_UNITS, "--area"),
+                   help="collecting area; plain numbers in m^2, or 2mm2; overrides radius/length")
+    g.add_argument("--end-cap", action="store_true", help="cylinder: count the flat tip in the area")
+    ion = g.add_mutually_exclusive_group()
+    ion.add_argument("--ion", default="Ar", help="ion species from the built-in table (default Ar)")
+    ion.add_argument("--ion-mass", type=_positive_float, metavar="AMU", help="ion mass in atomic mass units")
+    g.add_argument("--ion-collection", choices=["thin-sheath", "oml", "abr", "auto"], default="auto",
+                   help="ion collection theory (default auto: thin-sheath for planar probes, "
+                        "the smaller of OML and radial-flow ABR for wires and spheres)")
+    g.add_argument("--ion-temperature", type=_positive_float, default=0.026, metavar="EV",
+                   help="ion temperature in eV (default 0.026, room temperature)")
+    g.add_argument("--bohm-factor", default="boltzmann",
+                   help="sheath-edge density factor: boltzmann (exp(-1/2), default), 0.61, fluid (0.5) or a number")
+    g.add_argument("--quasi-neutral", action="store_true", help="tie n_i to n_e instead of fitting both")
+
+
+def _add_fit_options(p):
+    g = p.add_argument_group("inference")
+    g.add_argument("--model", choices=["maxwellian", "bi-maxwellian", "auto"], default="maxwellian",
+                   help="electron model; auto fits both and selects by PSIS-LOO (default maxwellian)")
+    g.add_argument("--credible-level", type=_probability, default=0.9, metavar="P",
+                   help="probability of the equal-tailed credible intervals (default 0.9)")
+    g.add_argument("--seed", type=_nonneg_int, default=0, help="random seed; same seed, same result (default 0)")
+    g.add_argument("--priors", type=Path, metavar="TOML",
+                   help="TOML file with [prior.NAME] tables (kind, lower, upper, mean, sd)")
+    g.add_argument("--student-t", type=_positive_float, metavar="NU",
+                   help="Student-t likelihood with NU degrees of freedom (robust to outliers)")
+    g.add_argument("--max-steps", type=_nonneg_int, default=20000,
+                   help="sampler step budget per ensemble before giving up (default 20000)")
+    g.add_argument("--sign", choices=["auto", "electron-positive", "ion-positive"], default="auto",
+                   help="current sign convention of the file (default: detect)")
+    g.add_argument("--voltage-column", help="name or 0-based index of the voltage column")
+    g.add_argument("--current-column", help="name or 0-based index of the current column")
+    g.add_argument("--no-figures", action="store_true", help="skip the PNG figures")
+    g.add_argument("--quiet", action="store_true", help="no progress bar or table")
+
+
+def build_parser() -> argparse.ArgumentParser:
+    from . import __version__
+    p = _Parser(prog="bayesprobe", description="Bayesian analysis of electrostatic (Langmuir) probe I-V sweeps.")
+    p.add_argument("--version", action="version", version=f"bayesprobe {__version__}")
+    sub = p.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
+
+    d = sub.add_parser("demo", help="fit the bundled synthetic demo scenario end to end")
+    d.add_argument("--out", type=Path, default=Path("bayesprobe-demo"), help="output folder (default ./bayesprobe-demo)")
+    d.add_argument("--seed", type=_nonneg_int, default=0)
+    d.add_argument("--quiet", action="store_true")
+
+    f = sub.add_parser("fit", help="one sweep file -> posterior, summary, figures")
+    f.add_argument("sweep", type=Path, help="sweep file: .csv/.tsv/.txt with a header row, .npy or .npz")
+    f.add_argument("--out", type=Path, required=True, help="output folder (nothing is half-written there)")
+    _add_physics_options(f)
+    _add_fit_options(f)
+
+    s = sub.add_parser("simulate", help="synthetic sweep(s) with the truth written beside them")
+    s.add_argument("--out", type=Path, required=True, help="output file: .csv or .npz (truth goes to NAME.truth.json)")
+    _add_physics_options(s)
+    s.add_argument("--model", choices=["maxwellian", "bi-maxwellian"], default="maxwellian")
+    s.add_argument("--n-e", type=_positive_float, default=1e16, help="electron density in m^-3 (default 1e16)")
+    s.add_argument("--n-i", type=_positive_float, help="ion density in m^-3 (default n_e)")
+    s.add_argument("--T-e", type=_positive_float, default=3.0, help="electron temperature in eV (cold group for bi-maxwellian)")
+    s.add_argument("--T-hot", type=_positive_float, default=12.0, help="hot-group temperature in eV (bi-maxwellian)")
+    s.add_argument("--hot-fraction", type=_probability, default=0.05, help="hot density / total (bi-maxwellian)")
+    s.add_argument("--V-p", type=float, default=12.0, help="plasma potential in V (default 12)")
+    s.add_argument("--v-min", type=float, help="sweep start in V (default V_p - 12 T_e - 20)")
+    s.add_argument("--v-max", type=float, help="sweep end in V (default V_p + 3 T_e)")
+    s.add_argument("--points", type=_nonneg_int, default=500, help="points per sweep (default 500)")
+    s.add_argument("--noise-rel", type=float, default=0.01, help="noise sd as a fraction of |I| (default 0.01)")
+    s.add_argument("--noise-floor", type=float, help="constant noise sd in A (default 1e-3 of I at V_p)")
+    s.add_argument("--outliers", type=float, default=0.0, help="fraction of heavy-tailed outlier points")
+    s.add_argument("--seed", type=_nonneg_int, default=0)
+    return p
+
+
+# ---------------------------------------------------------------------------- helpers
+
+def _probe_from(args):
+    from .physics.geometry import Probe
+    radius, length = args.radius, args.length
+    if args.geometry == "cylindrical":
+        radius = radius or 50e-6
+        length = length or 5e-3
+    elif args.geometry == "spherical":
+        radius = radius or 1e-3
+    elif args.geometry == "planar" and radius is None and args.area is None:
+        radius = 2e-3
+    return Probe(args.geometry, radius=radius, length=length if args.geometry == "cylindrical" else None,
+                 area=args.area, end_cap=args.end_cap)
+
+
+def _bohm(text):
+    try:
+        return float(text)
+    except ValueError:
+        return text
+
+
+def _config_from(args, electrons="maxwellian"):
+    from .fitting import make_config
+    try:
+        return _make(make_config, args, electrons)
+    except ValueError as exc:
+        raise InputError(" ".join(str(exc).split())) from None
+
+
+def _make(make_config, args, electrons):
+    return make_config(probe=_probe_from(args), ion=args.ion, ion_mass=args.ion_mass,
+                       ion_collection=args.ion_collection, electrons=electrons,
+                       quasi_neutral=args.quasi_neutral, T_i=args.ion_temperature,
+                       bohm_factor=_bohm(args.bohm_factor))
+
+
+def _read_priors(path: Path | None):
+    if path is None:
+        return None
+    try:
+        with open(path, "rb") as fh:
+            data = tomllib.load(fh)
+    except FileNotFoundError:
+        raise InputError(f"priors file {str(path)!r} does not exist") from None
+    except (tomllib.TOMLDecodeError, UnicodeDecodeError) as exc:
+        raise InputError(f"priors file {str(path)!r} is not valid TOML: {' '.join(str(exc).split())}") from None
+    table = data.get("prior", data)
+    if not isinstance(table, dict) or not all(isinstance(v, dict) for v in table.values()):
+        raise InputError("priors file must hold tables like [prior.T_e] with kind = \"log-uniform\", lower, upper")
+    return table
+
+
+def _say(args, text):
+    if not getattr(args, "quiet", False):
+        print(text, file=sys.stderr)
+
+
+# ---------------------------------------------------------------------------- commands
+
+def cmd_fit(args) -> int:
+    from . import fitting
+    from .inference.sampler import SamplerSettings
+    from .io import load_sweep, staged_output_dir
+
+    sweep = load_sweep(args.sweep, voltage_column=args.voltage_column, current_column=args.current_column,
+                       sign=args.sign)
+    for note in sweep.notes:
+        _say(args, f"note: {note}")
+    config = _config_from(args)
+    priors = _read_priors(args.priors)
+    settings = SamplerSettings(max_steps=max(args.max_steps, 100))
+    try:
+        result = fitting.fit(sweep, config=config, model=args.model, credible_level=args.credible_level,
+                             priors=priors, student_nu=args.student_t, seed=args.seed, sampler=settings,
+                             progress=None if not args.quiet else False)
+    except ValueError as exc:          # bad prior values and the like: one line
+        raise InputError(" ".join(str(exc).split())) from None
+    write_fit_outputs(result, args.out, figures=not args.no_figures)
+    if not args.quiet:
+        print(result.table())
+        if result.comparison:
+            print(result.comparison["reasoning"])
+        print(f"results written to {args.out}")
+    if not result.converged:
+        print("warning: the sampler did not converge within the step budget "
+              f"({'; '.join(result.diagnostics['unmet'])}); results are written with converged: false",
+              file=sys.stderr)
+        return EXIT_NOT_CONVERGED
+    return EXIT_OK
+
+
+def write_fit_outputs(result, out_dir: Path, *, figures: bool = True) -> None:
+    """summary.json, parameters.csv, posterior.nc and figures, all-or-nothing into ``out_dir``."""
+    from .io import staged_output_dir
+    with staged_output_dir(out_dir) as tmp:
+        result.to_json(tmp / "summary.json")
+        (tmp / "parameters.csv").write_text(_parameters_csv(result))
+        result.to_netcdf(tmp / "posterior.nc")
+        if figures:
+            import matplotlib
+            matplotlib.use("Agg")
+            from .plots import save_figures
+            save_figures(result, tmp)
+
+
+def _parameters_csv(result) -> str:
+    level = result.credible_level
+    lines = [f"parameter,unit,mean,sd,median,ci_low,ci_high,credible_level,classical"]
+    for name, e in result.parameter_summary().items():
+        c = result.classical.get(name, "") if isinstance(result.classical, dict) else ""
+        vals = [e[k] for k in ("mean", "sd", "median", "ci_low", "ci_high")]
+        lines.append(",".join([name, e["unit"]] + ["" if v is None else repr(float(v)) for v in vals]
+                              + [repr(level), "" if c in ("", None) else repr(float(c))]))
+    return "\n".join(lines) + "\n"
+
+
+def cmd_simulate(args) -> int:
+    from .io import atomic_write_text, write_sweep_csv
+    from .simulate import simulate
+    config = _config_from(args, electrons=args.model)
+    truth = {"n_e": args.n_e, "V_p": args.V_p}
+    if args.n_i:
+        truth["n_i"] = args.n_i
+    if args.model == "maxwellian":
+        truth["T_e"] = args.T_e
+    else:
+        truth.update({"T_e_cold": args.T_e, "T_e_hot": args.T_hot, "hot_fraction": args.hot_fraction})
+    try:
+        sim = simulate(truth, config=config, v_min=args.v_min, v_max=args.v_max, n_points=args.points,
+                       noise_rel=args.noise_rel, noise_floor=args.noise_floor, outlier_fraction=args.outliers,
+                       seed=args.seed, sweep_id=args.out.stem)
+    except ValueError as exc:
+        raise InputError(" ".join(str(exc).split())) from None
+    out = args.out
+    suffix = out.suffix.lower()
+    if suffix not in (".csv", ".npz"):
+        raise InputError(f"--out must end in .csv or .npz, got {str(out)!r}")
+    out.parent.mkdir(parents=True, exist_ok=True)
+    truth_path = out.with_name(out.stem + ".truth.json")
+    if suffix == ".csv":
+        write_sweep_csv(out, sim.sweep, header_comment="synthetic sweep from the bayesprobe forward model; "
+                                                       f"truth in {truth_path.name}")
+    else:
+        import io as _io
+
+        import numpy as np
+
+        from .io import atomic_write_bytes
+        buf = _io.BytesIO()
+        np.savez(buf, voltage=sim.sweep.voltage, current=sim.sweep.current)
+        atomic_write_bytes(out, buf.getvalue())
+    atomic_write_text(truth_path, json.dumps(sim.truth_record(), indent=2) + "\n")
+    print(f"wrote {out} ({sim.sweep.n_points} points) and {truth_path}")
+    return EXIT_OK
+
+
+def cmd_demo(args) -> int:
+    from .demo import run_demo
+    return run_demo(args.out, seed=args.seed, quiet=args.quiet)
+
+
+def main(argv=None) -> int:
+    parser = build_parser()
+    try:
+        args = parser.parse_args(argv)
+        if args.command is None:
+            parser.print_help()
+            return EXIT_OK
+        handler = {"fit": cmd_fit, "simulate": cmd_simulate, "demo": cmd_demo}[args.command]
+        return handler(args)
+    except InputError as exc:
+        print(f"error: {' '.join(str(exc).split())}", file=sys.stderr)
+        return EXIT_INPUT
+    except KeyboardInterrupt:
+        print("interrupted; nothing was written to the output folder", file=sys.stderr)
+        return 130
+
+
+if __name__ == "__main__":  # pragma: no cover
+    sys.exit(main())
