@@ -100,6 +100,8 @@ def _add_physics_options(p):
     g.add_argument("--bohm-factor", default="boltzmann",
                    help="sheath-edge density factor: boltzmann (exp(-1/2), default), 0.61, fluid (0.5) or a number")
     g.add_argument("--quasi-neutral", action="store_true", help="tie n_i to n_e instead of fitting both")
+    g.add_argument("--no-sheath-expansion", action="store_true",
+                   help="thin-sheath ions: keep the collecting area fixed (no Child-law sheath growth)")
 
 
 def _add_fit_options(p):
@@ -195,7 +197,7 @@ def _make(make_config, args, electrons):
     return make_config(probe=_probe_from(args), ion=args.ion, ion_mass=args.ion_mass,
                        ion_collection=args.ion_collection, electrons=electrons,
                        quasi_neutral=args.quasi_neutral, T_i=args.ion_temperature,
-                       bohm_factor=_bohm(args.bohm_factor))
+                       bohm_factor=_bohm(args.bohm_factor), sheath_expansion=not args.no_sheath_expansion)
 
 
 def _read_priors(path: Path | None):

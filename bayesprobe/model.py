@@ -24,10 +24,9 @@ from typing import Mapping
 import numpy as np
 
 from .physics.constants import ion_mass as _ion_mass
-from .physics.electrons import electron_current
-from .physics.formulary import screening_temperature
+from .physics.electrons import _electron_current
 from .physics.geometry import Probe
-from .physics.ions import ION_THEORIES, bohm_factor as _bohm_factor, ion_current
+from .physics.ions import ION_THEORIES, _ion_current, bohm_factor as _bohm_factor
 
 __all__ = ["ModelConfig", "ELECTRON_MODELS", "probe_current", "floating_potential",
            "plasma_parameter_names", "effective_temperature"]
@@ -131,6 +130,10 @@ def _column(params: Mapping, name: str):
 def _validate(params: Mapping, config: ModelConfig):
     for name in plasma_parameter_names(config):
         if name == "V_p":
+            if name not in params:
+                raise ValueError("missing parameter 'V_p'")
+            if np.any(~np.isfinite(np.asarray(params["V_p"], float))):
+                raise ValueError("V_p must be finite")
             continue
         v = np.asarray(params[name], float) if name in params else None
         if v is None:
@@ -172,18 +175,16 @@ def probe_current(V, params: Mapping, config: ModelConfig, *, validate: bool = T
     probe = config.probe
     if config.electrons == "maxwellian":
         T_e = _column(params, "T_e")
-        I_e = electron_current(V, V_p, n_e, T_e, probe, sheath_expansion=config.electron_sheath_expansion)
+        I_e = _electron_current(V, V_p, n_e, T_e, probe, sheath_expansion=config.electron_sheath_expansion)
         T_s = T_e
     else:
         T_c = _column(params, "T_e_cold")
         T_h = _column(params, "T_e_hot")
         a = _column(params, "hot_fraction")
-        I_e = electron_current(V, V_p, n_e, T_c, probe, hot_fraction=a, T_hot=T_h,
-                               sheath_expansion=config.electron_sheath_expansion)
-        T_s = screening_temperature(T_c, T_h, a)
-    I_i = ion_current(V, V_p, n_i, T_s, probe, config.ion_mass_kg, theory=config.ion_collection,
-                      n_e=n_e, T_i=config.T_i, bohm_factor=config.bohm_factor,
-                      sheath_expansion=config.sheath_expansion)
+        I_e = _electron_current(V, V_p, n_e, T_c, probe, a, T_h, config.electron_sheath_expansion)
+        T_s = 1.0 / ((1.0 - a) / T_c + a / T_h)        # screening temperature for the Bohm speed
+    I_i = _ion_current(V, V_p, n_i, T_s, probe, config.ion_mass_kg, config.ion_collection, n_e, config.T_i,
+                       config.bohm_factor, config.sheath_expansion)
     return I_e - I_i
 
 
@@ -202,6 +203,7 @@ def floating_potential(params: Mapping, config: ModelConfig, *, iterations: int 
     the lower end (ion saturation) and positive at V_p for any physical plasma.
     Returns NaN where no sign change exists in that bracket.
     """
+    _validate(params, config)
     V_p = np.atleast_1d(np.asarray(params["V_p"], float))
     T_max = effective_temperature(params, config) if config.electrons == "maxwellian" else \
         np.asarray(params["T_e_hot"], float)

@@ -144,6 +144,8 @@ class ParameterSet:
         self._log = np.array([p.log for p in self.params])
         bounds = np.array([p.z_bounds() for p in self.params])
         self.z_lower, self.z_upper = bounds[:, 0], bounds[:, 1]
+        flat = {("uniform", False), ("log-uniform", True)}
+        self._shaped = [i for i, p in enumerate(self.params) if (p.prior.kind, p.log) not in flat]
 
     def __len__(self):
         return len(self.params)
@@ -168,9 +170,10 @@ class ParameterSet:
 
     def log_prior(self, Z) -> np.ndarray:
         Z = np.atleast_2d(Z)
-        total = np.zeros(Z.shape[0])
-        for i, p in enumerate(self.params):
-            total = total + p.log_prior_z(Z[:, i])
+        inside = np.all((Z >= self.z_lower) & (Z <= self.z_upper), axis=1)
+        total = np.where(inside, 0.0, -np.inf)
+        for i in self._shaped:           # only priors that are not flat in z need evaluating
+            total = total + self.params[i].log_prior_z(Z[:, i])
         return total
 
     def with_priors(self, overrides: Mapping | None) -> "ParameterSet":

@@ -34,6 +34,7 @@ from __future__ import annotations
 import numpy as np
 from scipy.special import erfcx
 
+from ._checks import finite as _finite, fraction as _fraction, positive as _positive
 from .constants import E_CHARGE, EPS0, M_E
 from .geometry import Probe
 
@@ -44,32 +45,61 @@ _SQRT_E_OVER_2PI_ME = np.sqrt(E_CHARGE / (2.0 * np.pi * M_E))
 # electron Child-law coefficient sqrt(8 sqrt(pi)/9) (re-derived like the ion Child law,
 # with the random electron flux n e v_mean/4 at the sheath edge)
 _ELECTRON_CHILD = np.sqrt(8.0 * np.sqrt(np.pi) / 9.0)
+_TWO_OVER_SQRT_PI = 2.0 / np.sqrt(np.pi)
 
 
 def electron_saturation_current(n_e, T_e, area):
     """Random electron current e n_e A sqrt(e T_e/(2 pi m_e)) in A."""
+    _positive("n_e", n_e, allow_zero=True)
+    _positive("T_e", T_e)
+    _positive("area", area)
+    return _saturation(n_e, T_e, area)
+
+
+def _saturation(n_e, T_e, area):
     return E_CHARGE * n_e * area * _SQRT_E_OVER_2PI_ME * np.sqrt(T_e)
 
 
 def attracted_factor(chi, geometry: str, *, probe_radius=None, debye_length=None):
     """Saturation-branch growth factor I_e/I_es for chi = (V - V_p)/T_e >= 0.
 
-    ``chi`` below zero is treated as zero. For ``planar`` the factor is 1 unless
-    ``debye_length`` is given, in which case the electron Child-law sheath grows
-    the area of a disc of radius ``probe_radius``.
+    ``chi`` below zero is treated as zero (factor 1 for every geometry). For
+    ``planar`` the factor is 1 unless ``debye_length`` is given, in which case the
+    electron Child-law sheath grows the area of a disc of radius ``probe_radius``.
     """
+    if geometry not in ("planar", "cylindrical", "spherical"):
+        raise ValueError(f"geometry must be planar, cylindrical or spherical, got {geometry!r}")
+    if debye_length is not None:
+        _positive("probe_radius", probe_radius)
+        _positive("debye_length", debye_length)
+    return _attracted(chi, geometry, probe_radius, debye_length)
+
+
+def _attracted(chi, geometry, probe_radius=None, debye_length=None):
     chi = np.maximum(chi, 0.0)
     if geometry == "spherical":
         return 1.0 + chi
     if geometry == "cylindrical":
         root = np.sqrt(chi)
-        return 2.0 * root / np.sqrt(np.pi) + erfcx(root)
-    if geometry == "planar":
-        if debye_length is None:
-            return np.ones_like(chi)
-        s = _ELECTRON_CHILD * debye_length * chi ** 0.75
-        return (1.0 + s / probe_radius) ** 2
-    raise ValueError(f"geometry must be planar, cylindrical or spherical, got {geometry!r}")
+        return _TWO_OVER_SQRT_PI * root + erfcx(root)
+    if debye_length is None:
+        return np.ones_like(chi)
+    s = _ELECTRON_CHILD * debye_length * np.sqrt(chi) * np.sqrt(np.sqrt(chi))
+    return (1.0 + s / probe_radius) ** 2
+
+
+def _maxwellian(V, V_p, n_e, T_e, probe, sheath_expansion):
+    x = (V - V_p) / T_e
+    lam = None
+    if sheath_expansion and probe.geometry == "planar":
+        lam = np.sqrt(EPS0 * T_e / (np.maximum(n_e, 1.0) * E_CHARGE))
+    elif probe.geometry == "planar":
+        # flat saturation: the factor is exp(min(x, 0))
+        return _saturation(n_e, T_e, probe.area) * np.exp(np.minimum(x, 0.0))
+    # exp(min(x,0)) below V_p, growth factor above; both equal 1 at V_p, so their sum minus 1
+    # is the piecewise function without masks (cheaper on the sampler's hot path)
+    return _saturation(n_e, T_e, probe.area) * (np.exp(np.minimum(x, 0.0))
+                                                + _attracted(x, probe.geometry, probe.radius, lam) - 1.0)
 
 
 def maxwellian_electron_current(V, V_p, n_e, T_e, probe: Probe, *, sheath_expansion=False):
@@ -87,20 +117,11 @@ def maxwellian_electron_current(V, V_p, n_e, T_e, probe: Probe, *, sheath_expans
         Planar probes only: grow the saturation-branch area with the electron
         Child-law sheath (approximate; electron-sheath physics is richer).
     """
-    x = (V - V_p) / T_e
-    I_es = electron_saturation_current(n_e, T_e, probe.area)
-    shape = np.broadcast_shapes(np.shape(x), np.shape(I_es))
-    factor = np.broadcast_to(np.exp(np.minimum(x, 0.0)), shape).copy()
-    above = np.broadcast_to(x > 0.0, shape)
-    if probe.geometry == "planar" and not sheath_expansion:
-        pass                                   # flat saturation: exp(0) = 1 already
-    elif np.any(above):
-        lam = None
-        if sheath_expansion and probe.geometry == "planar":
-            lam = np.broadcast_to(np.sqrt(EPS0 * T_e / (np.maximum(n_e, 1e-300) * E_CHARGE)), shape)[above]
-        factor[above] = attracted_factor(np.broadcast_to(x, shape)[above], probe.geometry,
-                                         probe_radius=probe.radius, debye_length=lam)
-    return I_es * factor
+    _finite("V", V)
+    _finite("V_p", V_p)
+    _positive("n_e", n_e, allow_zero=True)
+    _positive("T_e", T_e)
+    return _maxwellian(V, V_p, n_e, T_e, probe, sheath_expansion)
 
 
 def electron_current(V, V_p, n_e, T_e, probe: Probe, *, hot_fraction=None, T_hot=None,
@@ -111,12 +132,21 @@ def electron_current(V, V_p, n_e, T_e, probe: Probe, *, hot_fraction=None, T_hot
     (density (1-a) n_e, temperature ``T_e``) plus a hot group (a n_e, ``T_hot``), each
     collected as above; a = 0 reproduces the Maxwellian exactly.
     """
+    _finite("V", V)
+    _finite("V_p", V_p)
+    _positive("n_e", n_e, allow_zero=True)
+    _positive("T_e", T_e)
+    if hot_fraction is not None:
+        _fraction("hot_fraction", hot_fraction)
+        if T_hot is None:
+            raise ValueError("T_hot is required when hot_fraction is given")
+        _positive("T_hot", T_hot)
+    return _electron_current(V, V_p, n_e, T_e, probe, hot_fraction, T_hot, sheath_expansion)
+
+
+def _electron_current(V, V_p, n_e, T_e, probe, hot_fraction=None, T_hot=None, sheath_expansion=False):
     if hot_fraction is None:
-        return maxwellian_electron_current(V, V_p, n_e, T_e, probe, sheath_expansion=sheath_expansion)
-    if T_hot is None:
-        raise ValueError("T_hot is required when hot_fraction is given")
-    cold = maxwellian_electron_current(V, V_p, (1.0 - hot_fraction) * n_e, T_e, probe,
-                                       sheath_expansion=sheath_expansion)
-    hot = maxwellian_electron_current(V, V_p, hot_fraction * n_e, T_hot, probe,
-                                      sheath_expansion=sheath_expansion)
+        return _maxwellian(V, V_p, n_e, T_e, probe, sheath_expansion)
+    cold = _maxwellian(V, V_p, (1.0 - hot_fraction) * n_e, T_e, probe, sheath_expansion)
+    hot = _maxwellian(V, V_p, hot_fraction * n_e, T_hot, probe, sheath_expansion)
     return cold + hot

@@ -57,7 +57,10 @@ def bohm_speed(T_e, ion_mass, T_i=0.0, gamma_i=1.0):
     """Bohm (ion-sound) speed sqrt(e (T_e + gamma_i T_i) / M) in m/s, temperatures in eV."""
     T_e = _check_positive("T_e", T_e)
     ion_mass = _check_positive("ion_mass", ion_mass)
-    return np.sqrt(E_CHARGE * (T_e + gamma_i * np.asarray(T_i, float)) / ion_mass)
+    T_i = np.asarray(T_i, float)
+    if np.any(~np.isfinite(T_i)) or np.any(T_i < 0):
+        raise ValueError("T_i must be non-negative and finite")
+    return np.sqrt(E_CHARGE * (T_e + gamma_i * T_i) / ion_mass)
 
 
 def electron_thermal_speed(T_e):
@@ -86,6 +89,8 @@ def child_sheath_thickness(V0, n_e, T_e):
     i.e. s = 1.0180 lambda_D (V0/T_e)^(3/4). (Lieberman & Lichtenberg 2005, ch. 6;
     coefficient re-derived.) Negative V0 are treated as zero.
     """
+    _check_positive("n_e", n_e)
+    _check_positive("T_e", T_e)
     V0 = np.clip(np.asarray(V0, float), 0.0, None)
     lam = EPS0 * np.asarray(T_e, float) / (np.asarray(n_e, float) * E_CHARGE)
     lam = np.sqrt(lam)
@@ -100,7 +105,11 @@ def screening_temperature(T_cold, T_hot, hot_fraction):
     multi-component Bohm criterion).
     """
     a = np.asarray(hot_fraction, float)
-    return 1.0 / ((1.0 - a) / np.asarray(T_cold, float) + a / np.asarray(T_hot, float))
+    if np.any(~np.isfinite(a)) or np.any((a < 0) | (a > 1)):
+        raise ValueError("hot_fraction must lie in [0, 1]")
+    T_cold = _check_positive("T_cold", T_cold)
+    T_hot = _check_positive("T_hot", T_hot)
+    return 1.0 / ((1.0 - a) / T_cold + a / T_hot)
 
 
 def maxwellian_eedf(energy, n_e, T_e):
@@ -110,5 +119,8 @@ def maxwellian_eedf(energy, n_e, T_e):
     the integral over eps (eV) equals n_e.
     """
     eps = np.clip(np.asarray(energy, float), 0.0, None)
-    T = np.asarray(T_e, float)
+    T = _check_positive("T_e", T_e)
+    n_e = np.asarray(n_e, float)
+    if np.any(~np.isfinite(n_e)) or np.any(n_e < 0):
+        raise ValueError("n_e must be non-negative and finite")
     return np.asarray(n_e, float) * 2.0 / np.sqrt(np.pi) * T ** -1.5 * np.sqrt(eps) * np.exp(-eps / T)

@@ -46,8 +46,9 @@ from __future__ import annotations
 
 import numpy as np
 
+from ._checks import finite as _finite, positive as _positive
 from .constants import E_CHARGE, EPS0
-from .electrons import attracted_factor
+from .electrons import _attracted
 from .geometry import Probe
 
 __all__ = ["ION_THEORIES", "BOHM_FACTORS", "bohm_factor", "ion_current",
@@ -58,7 +59,7 @@ ION_THEORIES = ("thin-sheath", "oml", "abr", "auto")
 #: named sheath-edge density factors n_s/n_0
 BOHM_FACTORS = {"boltzmann": float(np.exp(-0.5)), "0.61": 0.61, "fluid": 0.5}
 
-_CHILD = np.sqrt(2.0) / 3.0 * np.exp(0.25) * 2.0 ** 0.75   # s = _CHILD lambda_D (V0/T_e)^(3/4)
+_CHILD = np.sqrt(2.0) / 3.0 * np.exp(0.25) * 2.0 ** 0.75   # s = _CHILD lambda_D (V0/T_e)^(3/4) = 1.0180 ...
 
 
 def bohm_factor(value) -> float:
@@ -75,7 +76,21 @@ def bohm_factor(value) -> float:
 
 def _repelled(V, V_p, T_i):
     """exp(-(V - V_p)/T_i) above V_p, 1 below."""
-    return np.exp(-np.maximum(V - V_p, 0.0) / T_i)
+    return np.exp(np.minimum(V_p - V, 0.0) / T_i)
+
+
+def _check(V, V_p, n_i, T_e, probe, ion_mass, T_i, n_e=None):
+    _finite("V", V)
+    _finite("V_p", V_p)
+    _positive("n_i", n_i, allow_zero=True)
+    if T_e is not None:
+        _positive("T_e", T_e)
+    if n_e is not None:
+        _positive("n_e", n_e)
+    _positive("ion_mass", ion_mass)
+    _positive("T_i", T_i)
+    if not isinstance(probe, Probe):
+        raise ValueError("probe must be a bayesprobe.Probe")
 
 
 def thin_sheath_ion_current(V, V_p, n_i, T_e, probe: Probe, ion_mass, *, n_e=None, T_i=0.026,
@@ -85,33 +100,47 @@ def thin_sheath_ion_current(V, V_p, n_i, T_e, probe: Probe, ion_mass, *, n_e=Non
     ``T_e`` is the temperature setting the Bohm speed (the screening temperature
     for several electron groups); ``n_e`` (default ``n_i``) sets the Debye length.
     """
+    _check(V, V_p, n_i, T_e, probe, ion_mass, T_i, n_e)
+    _positive("bohm_factor", bohm_factor)
+    return _thin_sheath(V, V_p, n_i, T_e, probe, ion_mass, n_e, T_i, bohm_factor, sheath_expansion)
+
+
+def _thin_sheath(V, V_p, n_i, T_e, probe, ion_mass, n_e, T_i, bohm_factor, sheath_expansion):
     I_B = bohm_factor * E_CHARGE * n_i * probe.area * np.sqrt(E_CHARGE * T_e / ion_mass)
     if sheath_expansion:
         n_for_debye = n_i if n_e is None else n_e
         lam = np.sqrt(EPS0 * T_e / (n_for_debye * E_CHARGE))
         u = np.sqrt(np.maximum(V_p - V, 0.0) / T_e)
-        s = _CHILD * lam * (u * np.sqrt(u))              # (V0/T_e)^(3/4) via two square roots
-        ratio = 1.0 + s / probe.radius
+        s = (_CHILD / probe.radius) * lam * (u * np.sqrt(u))  # s/r_p, (V0/T_e)^(3/4) via two roots
+        ratio = 1.0 + s
         I_B = I_B * (ratio if probe.geometry == "cylindrical" else ratio * ratio)
     return I_B * _repelled(V, V_p, T_i)
 
 
 def oml_ion_current(V, V_p, n_i, probe: Probe, ion_mass, *, T_i=0.026):
     """Orbital-motion-limited ion current of Maxwellian ions (temperature T_i, eV), in A."""
-    if probe.geometry == "planar":
+    if isinstance(probe, Probe) and probe.geometry == "planar":
         raise ValueError("OML ion collection applies to cylindrical and spherical probes, not planar")
+    _check(V, V_p, n_i, None, probe, ion_mass, T_i)
+    return _oml(V, V_p, n_i, probe, ion_mass, T_i)
+
+
+def _oml(V, V_p, n_i, probe, ion_mass, T_i):
     I_th = E_CHARGE * n_i * probe.area * np.sqrt(E_CHARGE * T_i / (2.0 * np.pi * ion_mass))
     chi = (V_p - V) / T_i
-    factor = np.exp(np.minimum(chi, 0.0))
-    attracted = chi > 0.0
-    factor[attracted] = attracted_factor(chi[attracted], probe.geometry)
-    return I_th * factor
+    # attracted branch below V_p, Boltzmann fall-off above; both are 1 at V_p
+    return I_th * (np.exp(np.minimum(chi, 0.0)) + _attracted(chi, probe.geometry) - 1.0)
 
 
 def abr_ion_current(V, V_p, n_i, T_e, probe: Probe, ion_mass, *, n_e=None, T_i=0.026):
     """Radial cold-ion (ABR) ion current from the precomputed table, in A."""
-    if probe.geometry == "planar":
+    if isinstance(probe, Probe) and probe.geometry == "planar":
         raise ValueError("ABR ion collection applies to cylindrical and spherical probes, not planar")
+    _check(V, V_p, n_i, T_e, probe, ion_mass, T_i, n_e)
+    return _abr(V, V_p, n_i, T_e, probe, ion_mass, n_e, T_i)
+
+
+def _abr(V, V_p, n_i, T_e, probe, ion_mass, n_e, T_i):
     from .abr import abr_current  # table loaded lazily
 
     n_for_debye = n_i if n_e is None else n_e
@@ -145,14 +174,22 @@ def ion_current(V, V_p, n_i, T_e, probe: Probe, ion_mass, *, theory="auto", n_e=
     sheath_expansion : bool
         Child-law growth of the sheath-edge area for ``thin-sheath``.
     """
+    if theory not in ION_THEORIES:
+        raise ValueError(f"ion collection theory must be one of {', '.join(ION_THEORIES)}, got {theory!r}")
+    if isinstance(probe, Probe) and probe.geometry == "planar" and theory in ("oml", "abr"):
+        raise ValueError(f"{theory} ion collection applies to cylindrical and spherical probes, not planar")
+    _check(V, V_p, n_i, T_e, probe, ion_mass, T_i, n_e)
+    _positive("bohm_factor", bohm_factor)
+    return _ion_current(V, V_p, n_i, T_e, probe, ion_mass, theory, n_e, T_i, bohm_factor, sheath_expansion)
+
+
+def _ion_current(V, V_p, n_i, T_e, probe, ion_mass, theory, n_e, T_i, bohm_factor, sheath_expansion):
+    """Unchecked ion current (the sampler's hot path; callers validate)."""
     if theory == "thin-sheath" or (theory == "auto" and probe.geometry == "planar"):
-        return thin_sheath_ion_current(V, V_p, n_i, T_e, probe, ion_mass, n_e=n_e, T_i=T_i,
-                                       bohm_factor=bohm_factor, sheath_expansion=sheath_expansion)
+        return _thin_sheath(V, V_p, n_i, T_e, probe, ion_mass, n_e, T_i, bohm_factor, sheath_expansion)
     if theory == "oml":
-        return oml_ion_current(V, V_p, n_i, probe, ion_mass, T_i=T_i)
+        return _oml(V, V_p, n_i, probe, ion_mass, T_i)
     if theory == "abr":
-        return abr_ion_current(V, V_p, n_i, T_e, probe, ion_mass, n_e=n_e, T_i=T_i)
-    if theory == "auto":
-        return np.minimum(oml_ion_current(V, V_p, n_i, probe, ion_mass, T_i=T_i),
-                          abr_ion_current(V, V_p, n_i, T_e, probe, ion_mass, n_e=n_e, T_i=T_i))
-    raise ValueError(f"ion collection theory must be one of {', '.join(ION_THEORIES)}, got {theory!r}")
+        return _abr(V, V_p, n_i, T_e, probe, ion_mass, n_e, T_i)
+    return np.minimum(_oml(V, V_p, n_i, probe, ion_mass, T_i),
+                      _abr(V, V_p, n_i, T_e, probe, ion_mass, n_e, T_i))
