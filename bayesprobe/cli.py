@@ -9,6 +9,7 @@ from __future__ import annotations
 import argparse
 import json
 import math
+import os
 import re
 import sys
 import tomllib
@@ -340,6 +341,12 @@ def main(argv=None) -> int:
     except KeyboardInterrupt:
         print("interrupted; nothing was written to the output folder", file=sys.stderr)
         return 130
+    except Exception as exc:                      # a bug, not the user's fault: still one line
+        if os.environ.get("BAYESPROBE_DEBUG"):
+            raise
+        print(f"error: unexpected {type(exc).__name__}: {' '.join(str(exc).split())} "
+              "(set BAYESPROBE_DEBUG=1 for a traceback and please report it)", file=sys.stderr)
+        return 1
 
 
 if __name__ == "__main__":  # pragma: no cover
