@@ -22,7 +22,7 @@ def run_cli(*args):
 
 
 def write_csv(path, V, I, header="voltage_V,current_A"):
-    path.write_text(header + "\n" + "\n".join(f"{v!r},{i!r}" for v, i in zip(V, I)) + "\n")
+    path.write_text(header + "\n" + "\n".join(f"{float(v)!r},{float(i)!r}" for v, i in zip(V, I)) + "\n")
     return path
 
 
@@ -60,7 +60,7 @@ def test_simulate_npz(tmp_path):
 
 
 @pytest.mark.parametrize("args,phrase", [
-    (["fit", "{missing}", "--out", "{out}"], "does not exist"),
+    (["fit", "{missing}", "--out", "{out}"], "not found"),
     (["fit", "{sweep}", "--out", "{out}", "--ion", "Unobtainium"], "unknown ion"),
     (["fit", "{sweep}", "--out", "{out}", "--radius", "-1"], "--radius"),
     (["fit", "{sweep}", "--out", "{out}", "--credible-level", "1.5"], "credible-level"),
@@ -151,4 +151,4 @@ def test_not_converged_exit_3_results_written(tmp_path, sweep_file):
 
 def test_main_returns_code_without_exiting(tmp_path, capsys):
     assert main(["fit", str(tmp_path / "none.csv"), "--out", str(tmp_path / "o")]) == 2
-    assert "does not exist" in capsys.readouterr().err
+    assert "not found" in capsys.readouterr().err

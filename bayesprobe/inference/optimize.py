@@ -68,6 +68,13 @@ def laplace_covariance(logpost, z, *, rel_step: float = 1e-4):
     z = np.asarray(z, float)
     d = z.size
     h = rel_step * np.maximum(np.abs(z), 1.0)
+    params = getattr(logpost, "parameters", None)
+    if params is not None:
+        # an optimum on (or next to) a prior bound: take the curvature a few steps inside it
+        lo, hi = params.z_lower, params.z_upper
+        inner_lo = np.where(np.isfinite(lo), lo + 3 * h, -np.inf)
+        inner_hi = np.where(np.isfinite(hi), hi - 3 * h, np.inf)
+        z = np.where(inner_lo < inner_hi, np.clip(z, inner_lo, inner_hi), z)
     pts = [z]
     pairs = []
     for i in range(d):
@@ -81,18 +88,30 @@ def laplace_covariance(logpost, z, *, rel_step: float = 1e-4):
     vals = logpost(np.array(pts))
     H = np.zeros((d, d))
     k = 1
-    for i, j in pairs:
-        fpp, fpm, fmp, fmm = vals[k:k + 4]
-        k += 4
-        H[i, j] = H[j, i] = (fpp - fpm - fmp + fmm) / (4 * h[i] * h[j])
+    with np.errstate(invalid="ignore"):
+        for i, j in pairs:
+            fpp, fpm, fmp, fmm = vals[k:k + 4]
+            k += 4
+            H[i, j] = H[j, i] = (fpp - fpm - fmp + fmm) / (4 * h[i] * h[j])
     neg_h = -H
     ok = bool(np.all(np.isfinite(neg_h)))
     if not ok:
+        # unusable curvature: fall back to a width of a tenth of the prior range (or 1 in z)
         neg_h = np.where(np.isfinite(neg_h), neg_h, 0.0)
-        neg_h += np.diag(np.where(np.diag(neg_h) > 0, 0.0, 1.0))
+        if params is not None:
+            span = np.where(np.isfinite(params.z_upper - params.z_lower), params.z_upper - params.z_lower, 10.0)
+        else:
+            span = np.full(d, 10.0)
+        fallback = 1.0 / (0.1 * span) ** 2
+        neg_h += np.diag(np.where(np.diag(neg_h) > 0, 0.0, fallback))
     w, v = np.linalg.eigh(0.5 * (neg_h + neg_h.T))
     if np.any(w <= 0):
         ok = False
-        w = np.where(w > 0, w, np.max(np.abs(w)) * 1e-6 + 1e-12)
+    # no direction wider than a tenth of the widest prior range (flat directions at a bound)
+    if params is not None and np.any(np.isfinite(params.z_upper - params.z_lower)):
+        widest = float(np.max((params.z_upper - params.z_lower)[np.isfinite(params.z_upper - params.z_lower)]))
+    else:
+        widest = 10.0
+    w = np.maximum(w, 1.0 / (0.1 * widest) ** 2)
     cov = (v / w) @ v.T
     return cov, ok

@@ -1,9 +1,9 @@
 """One description per fitted parameter: name, unit, label, prior, transform.
 
-The sampler works in unconstrained-ish coordinates ``z``: ``z = ln(x)`` for
-positive scale parameters (densities, temperatures, noise levels) and ``z = x``
-for potentials. A prior is stated in physical units and evaluated in ``z``
-(with the Jacobian), so a log-uniform prior on x is flat in z.
+The sampler works in coordinates ``z``: ``z = ln(x)`` for positive scale
+parameters (densities, temperatures, noise levels), ``z = logit(x)`` for
+fractions, and ``z = x`` for potentials. A prior is stated in physical units and
+evaluated in ``z`` (with the Jacobian), so a log-uniform prior on x is flat in z.
 
 Default priors (all weakly informative and physically bounded; override with a
 dict or a TOML table ``[prior.NAME]`` holding ``kind`` and its numbers):
@@ -13,8 +13,11 @@ parameter          kind           default support
 =================  =============  ==========================================
 n_e, n_i           log-uniform    1e12 .. 1e21 m^-3
 T_e, T_e_cold      log-uniform    0.1 .. 100 eV
-T_e_hot            log-uniform    0.5 .. 300 eV (and T_e_hot > T_e_cold)
-hot_fraction       log-uniform    1e-4 .. 0.5
+T_e_hot            log-uniform    0.5 .. 300 eV (and T_e_hot >= 1.5 T_e_cold)
+hot_fraction       beta(1, 4)     0 .. 0.5, sampled as logit (density 4 at 0: "no hot
+                                  population" is allowed without a hard boundary; the hot
+                                  group is the minority, which with the temperature
+                                  ordering removes the mirror-image solution)
 V_p                uniform        V_min .. V_max + (V_max - V_min)/2 of the sweep
 sigma_floor        log-uniform    1e-7 .. 1 times max|I| of the sweep
 sigma_rel          log-uniform    1e-4 .. 1
@@ -28,9 +31,20 @@ from typing import Mapping
 
 import numpy as np
 
-__all__ = ["Prior", "Parameter", "ParameterSet", "PRIOR_KINDS"]
+__all__ = ["Prior", "Parameter", "ParameterSet", "PRIOR_KINDS", "TRANSFORMS"]
 
-PRIOR_KINDS = ("uniform", "log-uniform", "normal", "log-normal")
+PRIOR_KINDS = ("uniform", "log-uniform", "normal", "log-normal", "beta")
+TRANSFORMS = ("identity", "log", "logit")
+
+
+def _num(d, k):
+    try:
+        v = float(d[k])
+    except (TypeError, ValueError):
+        raise ValueError(f"prior field {k!r} must be a number, got {d[k]!r}") from None
+    if not math.isfinite(v):
+        raise ValueError(f"prior field {k!r} must be finite")
+    return v
 
 
 @dataclass(frozen=True)
@@ -38,8 +52,9 @@ class Prior:
     """A prior in physical units.
 
     ``uniform``/``log-uniform`` use ``lower`` and ``upper``; ``normal`` uses
-    ``mean`` and ``sd`` (on x); ``log-normal`` uses ``mean`` and ``sd`` of ln x.
-    ``lower``/``upper`` also truncate normal priors when given.
+    ``mean`` and ``sd`` (on x); ``log-normal`` uses ``mean`` and ``sd`` of ln x;
+    ``beta`` uses ``a`` and ``b`` (for fractions in (0, 1)). ``lower``/``upper`` also
+    truncate normal priors when given.
     """
 
     kind: str
@@ -47,6 +62,8 @@ class Prior:
     upper: float | None = None
     mean: float | None = None
     sd: float | None = None
+    a: float | None = None
+    b: float | None = None
 
     def __post_init__(self):
         if self.kind not in PRIOR_KINDS:
@@ -56,77 +73,109 @@ class Prior:
                 raise ValueError(f"a {self.kind} prior needs lower < upper, got {self.lower!r}, {self.upper!r}")
             if self.kind == "log-uniform" and self.lower <= 0:
                 raise ValueError("a log-uniform prior needs a positive lower bound")
+        elif self.kind == "beta":
+            if self.a is None or self.b is None or not (self.a > 0 and self.b > 0):
+                raise ValueError("a beta prior needs positive a and b")
         else:
             if self.mean is None or self.sd is None or not self.sd > 0:
                 raise ValueError(f"a {self.kind} prior needs mean and a positive sd")
 
     def to_dict(self) -> dict:
-        return {k: v for k, v in (("kind", self.kind), ("lower", self.lower), ("upper", self.upper),
-                                  ("mean", self.mean), ("sd", self.sd)) if v is not None}
+        return {k: getattr(self, k) for k in ("kind", "lower", "upper", "mean", "sd", "a", "b")
+                if getattr(self, k) is not None}
 
     @classmethod
     def from_dict(cls, d: Mapping) -> "Prior":
-        unknown = set(d) - {"kind", "lower", "upper", "mean", "sd"}
+        fields = ("lower", "upper", "mean", "sd", "a", "b")
+        unknown = set(d) - {"kind", *fields}
         if unknown:
-            raise ValueError(f"unknown prior field(s) {sorted(unknown)}; use kind, lower, upper, mean, sd")
+            raise ValueError(f"unknown prior field(s) {sorted(unknown)}; use kind, lower, upper, mean, sd, a, b")
         if "kind" not in d:
             raise ValueError("a prior needs a 'kind' (" + ", ".join(PRIOR_KINDS) + ")")
-        vals = {}
-        for k in ("lower", "upper", "mean", "sd"):
-            if k in d:
-                try:
-                    vals[k] = float(d[k])
-                except (TypeError, ValueError):
-                    raise ValueError(f"prior field {k!r} must be a number, got {d[k]!r}") from None
-                if not math.isfinite(vals[k]):
-                    raise ValueError(f"prior field {k!r} must be finite")
-        return cls(str(d["kind"]), **vals)
+        return cls(str(d["kind"]), **{k: _num(d, k) for k in fields if k in d})
 
 
 @dataclass(frozen=True)
 class Parameter:
-    """A fitted parameter: the single source of its name, unit, label, prior and transform."""
+    """A fitted parameter: the single source of its name, unit, label, prior and transform.
+
+    ``transform`` is ``identity``, ``log`` or ``logit``; ``log=True`` is shorthand for
+    ``transform="log"``.
+    """
 
     name: str
     unit: str
     label: str
     prior: Prior
-    log: bool
+    log: bool = False
     description: str = ""
+    transform: str | None = None
+
+    def __post_init__(self):
+        t = self.transform or ("log" if self.log else "identity")
+        if t not in TRANSFORMS:
+            raise ValueError(f"transform must be one of {', '.join(TRANSFORMS)}, got {t!r}")
+        object.__setattr__(self, "transform", t)
+        object.__setattr__(self, "log", t == "log")
+        if self.prior.kind == "beta" and t != "logit":
+            raise ValueError(f"{self.name}: a beta prior needs the logit transform")
 
     def to_z(self, x):
-        return np.log(x) if self.log else np.asarray(x, float)
+        x = np.asarray(x, float)
+        if self.transform == "log":
+            return np.log(x)
+        if self.transform == "logit":
+            return np.log(x) - np.log1p(-x)
+        return x
 
     def from_z(self, z):
-        return np.exp(z) if self.log else z
+        if self.transform == "log":
+            return np.exp(z)
+        if self.transform == "logit":
+            return 1.0 / (1.0 + np.exp(-z))
+        return z
 
     def z_bounds(self) -> tuple[float, float]:
         lo, hi = self.prior.lower, self.prior.upper
-        if self.log:
+        if self.transform == "logit":
+            lo = lo if lo is not None and lo > 0 else None
+            hi = hi if hi is not None and hi < 1 else None
+            return (float(self.to_z(lo)) if lo is not None else -np.inf,
+                    float(self.to_z(hi)) if hi is not None else np.inf)
+        if self.transform == "log":
             return (math.log(lo) if lo is not None and lo > 0 else -np.inf,
                     math.log(hi) if hi is not None else np.inf)
         return (lo if lo is not None else -np.inf, hi if hi is not None else np.inf)
 
+    def _log_jacobian(self, z, x):
+        """log |dx/dz|."""
+        if self.transform == "log":
+            return z
+        if self.transform == "logit":
+            return np.log(x) + np.log1p(-x)
+        return np.zeros_like(z)
+
     def log_prior_z(self, z):
         """Log prior density in z coordinates (up to a constant), -inf outside the support."""
+        z = np.asarray(z, float)
         lo, hi = self.z_bounds()
         inside = (z >= lo) & (z <= hi)
         p = self.prior
-        if p.kind in ("uniform", "log-uniform"):
-            # density in z: flat if the kind matches the transform, else with Jacobian
-            if p.kind == "uniform" and self.log:
-                val = z                      # x uniform -> p(z) ∝ e^z
-            elif p.kind == "log-uniform" and not self.log:
-                val = -np.log(np.abs(z) + 1e-300)
-            else:
-                val = np.zeros_like(z)
-        elif p.kind == "normal":
+        with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
             x = self.from_z(z)
-            val = -0.5 * ((x - p.mean) / p.sd) ** 2 + (z if self.log else 0.0)
-        else:  # log-normal: normal in ln x
-            lx = z if self.log else np.log(np.maximum(z, 1e-300))
-            val = -0.5 * ((lx - p.mean) / p.sd) ** 2 - (0.0 if self.log else lx)
-        return np.where(inside, val, -np.inf)
+            jac = self._log_jacobian(z, x)
+            if p.kind == "uniform":
+                val = jac
+            elif p.kind == "log-uniform":
+                val = jac - np.log(np.abs(x))
+            elif p.kind == "normal":
+                val = -0.5 * ((x - p.mean) / p.sd) ** 2 + jac
+            elif p.kind == "log-normal":
+                lx = np.log(x)
+                val = -0.5 * ((lx - p.mean) / p.sd) ** 2 - lx + jac
+            else:  # beta
+                val = (p.a - 1) * np.log(x) + (p.b - 1) * np.log1p(-x) + jac
+            return np.where(inside & np.isfinite(val), val, -np.inf)
 
     def with_prior(self, prior: Prior) -> "Parameter":
         return replace(self, prior=prior)
@@ -141,11 +190,10 @@ class ParameterSet:
         if len(set(self.names)) != len(self.names):
             raise ValueError("duplicate parameter names")
         self.index = {n: i for i, n in enumerate(self.names)}
-        self._log = np.array([p.log for p in self.params])
         bounds = np.array([p.z_bounds() for p in self.params])
         self.z_lower, self.z_upper = bounds[:, 0], bounds[:, 1]
-        flat = {("uniform", False), ("log-uniform", True)}
-        self._shaped = [i for i, p in enumerate(self.params) if (p.prior.kind, p.log) not in flat]
+        flat = {("uniform", "identity"), ("log-uniform", "log")}
+        self._shaped = [i for i, p in enumerate(self.params) if (p.prior.kind, p.transform) not in flat]
 
     def __len__(self):
         return len(self.params)
@@ -163,7 +211,7 @@ class ParameterSet:
     def to_physical(self, Z) -> dict:
         """(k, d) z-array -> dict name -> (k,) physical values."""
         Z = np.atleast_2d(Z)
-        return {p.name: (np.exp(Z[:, i]) if p.log else Z[:, i]) for i, p in enumerate(self.params)}
+        return {p.name: p.from_z(Z[:, i]) for i, p in enumerate(self.params)}
 
     def to_z(self, values: Mapping) -> np.ndarray:
         return np.array([p.to_z(values[p.name]) for p in self.params], dtype=float)
@@ -187,11 +235,12 @@ class ParameterSet:
         for p in self.params:
             if p.name in overrides:
                 o = overrides[p.name]
-                new.append(p.with_prior(o if isinstance(o, Prior) else Prior.from_dict(o)))
+                prior = o if isinstance(o, Prior) else Prior.from_dict(o)
+                new.append(replace(p, prior=prior))
             else:
                 new.append(p)
         return ParameterSet(new)
 
     def describe(self) -> dict:
-        return {p.name: {"unit": p.unit, "transform": "log" if p.log else "identity",
+        return {p.name: {"unit": p.unit, "transform": p.transform,
                          "prior": p.prior.to_dict(), "description": p.description} for p in self.params}

@@ -14,7 +14,11 @@ from scipy.special import gammaln
 from ..model import ModelConfig, plasma_parameter_names, probe_current
 from .parameters import Parameter, ParameterSet, Prior
 
-__all__ = ["default_parameters", "LogPosterior"]
+__all__ = ["default_parameters", "LogPosterior", "MIN_HOT_RATIO"]
+
+#: the hot group must be at least this much hotter than the cold group (ordering, no label switching)
+MIN_HOT_RATIO = 1.5
+_LOG_MIN_RATIO = float(np.log(MIN_HOT_RATIO))
 
 _LABELS = {"n_e": (r"$n_e$", "m^-3", "electron density"),
            "n_i": (r"$n_i$", "m^-3", "ion density"),
@@ -34,7 +38,7 @@ def default_parameters(config: ModelConfig, voltage, current) -> ParameterSet:
     defaults = {
         "n_e": Prior("log-uniform", 1e12, 1e21), "n_i": Prior("log-uniform", 1e12, 1e21),
         "T_e": Prior("log-uniform", 0.1, 100.0), "T_e_cold": Prior("log-uniform", 0.1, 100.0),
-        "T_e_hot": Prior("log-uniform", 0.5, 300.0), "hot_fraction": Prior("log-uniform", 1e-4, 0.5),
+        "T_e_hot": Prior("log-uniform", 0.5, 300.0), "hot_fraction": Prior("beta", upper=0.5, a=1.0, b=4.0),
         "V_p": Prior("uniform", v_min, v_max + 0.5 * (v_max - v_min)),
         "sigma_floor": Prior("log-uniform", 1e-7 * i_max, i_max),
         "sigma_rel": Prior("log-uniform", 1e-4, 1.0),
@@ -43,7 +47,8 @@ def default_parameters(config: ModelConfig, voltage, current) -> ParameterSet:
     out = []
     for n in names:
         label, unit, desc = _LABELS[n]
-        out.append(Parameter(n, unit, label, defaults[n], log=(n != "V_p"), description=desc))
+        transform = "identity" if n == "V_p" else ("logit" if n == "hot_fraction" else "log")
+        out.append(Parameter(n, unit, label, defaults[n], transform=transform, description=desc))
     return ParameterSet(out)
 
 
@@ -95,7 +100,7 @@ class LogPosterior:
         if self._has_order:
             i_c = self.parameters.index["T_e_cold"]
             i_h = self.parameters.index["T_e_hot"]
-            lp = np.where(Z[:, i_h] > Z[:, i_c], lp, -np.inf)
+            lp = np.where(Z[:, i_h] - Z[:, i_c] >= _LOG_MIN_RATIO, lp, -np.inf)
         return lp
 
     def __call__(self, Z) -> np.ndarray:

@@ -15,7 +15,10 @@ Convergence criteria (all must hold, checked at chain-length doublings):
    (1000), taking the smaller of arviz's multi-chain estimate over walkers and
    the autocorrelation estimate n_kept * n_walkers * n_ensembles / tau.
 
-The first ``burn_fraction`` of every chain is discarded at each check. When the
+Before counting starts, a warm-up of ``warmup_steps`` (discarded) lets the
+ensembles settle; walkers stranded far below the others are moved onto copies
+of good walkers then (never afterwards). The first ``burn_fraction`` of every
+counted chain is also discarded at each check. When the
 step budget ``max_steps`` is exhausted the result says ``converged = False``
 instead of pretending.
 """
@@ -37,9 +40,10 @@ __all__ = ["SamplerSettings", "SamplerRun", "run_ensembles", "start_positions"]
 class SamplerSettings:
     n_ensembles: int = 2
     n_walkers: int | None = None        # default max(4 d, 24), even
-    initial_steps: int = 600
+    warmup_steps: int = 200
+    initial_steps: int = 500
     max_steps: int = 20000
-    burn_fraction: float = 0.25
+    burn_fraction: float = 0.2
     min_tau_multiple: float = 50.0
     tau_rel_change: float = 0.2
     rhat_max: float = 1.01
@@ -67,6 +71,7 @@ class SamplerRun:
     reasons: list = field(default_factory=list)
     timings: dict = field(default_factory=dict)
     history: list = field(default_factory=list)
+    rescued_walkers: int = 0
 
     @property
     def flat(self) -> np.ndarray:
@@ -75,18 +80,52 @@ class SamplerRun:
 
 
 def start_positions(logpost, center, cov, n, rng: np.random.Generator, scale: float = 1.5):
-    """n starting points from N(center, scale^2 cov), each with finite log-posterior."""
+    """n starting points from N(center, scale^2 cov) inside the typical set of the approximation.
+
+    Points whose log-posterior falls further below the optimum than a Gaussian's
+    0.999 chi-square quantile allows (scaled by ``scale``^2) are redrawn: where the
+    Laplace approximation is poor (a flat direction at a boundary), this keeps
+    walkers from starting stranded in regions they would take thousands of steps
+    to leave.
+    """
+    from scipy.stats import chi2
     d = center.size
     out = np.empty((0, d))
     L = np.linalg.cholesky(cov + 1e-12 * np.eye(d))
-    for attempt in range(50):
-        s = scale if attempt < 25 else scale / (1 + attempt - 24)
+    lp0 = float(logpost(center[None, :])[0])
+    allowed = 0.5 * chi2.ppf(0.999, d) * scale**2 + 1.0
+    for attempt in range(60):
+        s = scale if attempt < 10 else scale * 0.7 ** (attempt - 9)
         cand = center + s * rng.standard_normal((2 * n, d)) @ L.T
-        good = cand[np.isfinite(logpost(cand))]
+        lp = logpost(cand)
+        good = cand[np.isfinite(lp) & (lp >= lp0 - allowed)]
         out = np.vstack([out, good])
         if len(out) >= n:
             return out[:n]
     raise RuntimeError("could not find starting points with finite posterior density around the optimum")
+
+
+def _rescue_stragglers(state: emcee.State, rng: np.random.Generator, ndim: int):
+    """Warm-up only: move walkers stranded far below the ensemble onto copies of good walkers.
+
+    Stranded walkers are those whose log-posterior lies more than max(10, 2 d) below
+    the ensemble median. This happens before any draw is kept, so it changes where
+    the chains start, not what they converge to.
+    """
+    lp = state.log_prob
+    med = np.median(lp)
+    bad = lp < med - max(10.0, 2.0 * ndim)
+    if not np.any(bad):
+        return state, 0
+    good_idx = np.flatnonzero(~bad)
+    coords = state.coords.copy()
+    log_prob = lp.copy()
+    spread = np.std(coords[good_idx], axis=0) * 1e-3
+    for i in np.flatnonzero(bad):
+        j = rng.choice(good_idx)
+        coords[i] = coords[j] + spread * rng.standard_normal(ndim)
+        log_prob[i] = np.nan                      # recomputed by emcee
+    return emcee.State(coords, log_prob=None, random_state=state.random_state), int(bad.sum())
 
 
 class _Timed:
@@ -144,9 +183,20 @@ def run_ensembles(logpost, center, cov, *, settings: SamplerSettings = SamplerSe
     bar = None
     if progress:
         from tqdm.auto import tqdm
-        bar = tqdm(total=settings.max_steps * settings.n_ensembles, desc="sampling", unit="step",
+        bar = tqdm(total=(settings.max_steps + settings.warmup_steps) * settings.n_ensembles, desc="sampling", unit="step",
                    leave=False, file=sys.stderr)
     t0 = time.perf_counter()
+    # warm-up (discarded): let the ensembles find the bulk, rescue stranded walkers twice
+    rescued = 0
+    for e, sampler in enumerate(samplers):
+        rng = np.random.default_rng(child[e].spawn(1)[0])
+        for _ in range(2):
+            states[e] = sampler.run_mcmc(states[e], settings.warmup_steps // 2, progress=False)
+            states[e], k = _rescue_stragglers(states[e], rng, d)
+            rescued += k
+        sampler.reset()
+        if bar is not None:
+            bar.update(settings.warmup_steps)
     t_diag = 0.0
     n_steps = 0
     target = settings.initial_steps
@@ -201,4 +251,4 @@ def run_ensembles(logpost, center, cov, *, settings: SamplerSettings = SamplerSe
                       converged=converged, n_steps=n_steps, burn=burn, acceptance=acc, reasons=reasons,
                       timings={"sampling_s": total - t_diag, "model_s": timed.seconds,
                                "diagnostics_s": t_diag, "model_calls": timed.calls},
-                      history=history)
+                      history=history, rescued_walkers=rescued)
