@@ -39,6 +39,10 @@ def compare_models(results: dict):
                      "n_pareto_k_above_0.7": n_bad}
         if n_bad:
             warnings.append(f"{k}: {n_bad} point(s) with Pareto k > 0.7, LOO unreliable there")
+        if not results[k].converged:
+            warnings.append(f"{k}: the fit did not meet the convergence criteria within its step budget "
+                            f"({'; '.join(results[k].diagnostics.get('unmet', []))}); its elpd_loo is approximate")
+        models[k]["converged"] = bool(results[k].converged)
     simple, rich = ORDER
     selected = simple
     reasoning = ""

@@ -40,7 +40,7 @@ __all__ = ["SamplerSettings", "SamplerRun", "run_ensembles", "start_positions"]
 class SamplerSettings:
     n_ensembles: int = 2
     n_walkers: int | None = None        # default max(4 d, 24), even
-    warmup_steps: int = 200
+    warmup_steps: int = 100
     initial_steps: int = 500
     max_steps: int = 20000
     burn_fraction: float = 0.2
