@@ -43,8 +43,13 @@ def random_case(i: int):
 
 
 def coverage(indices):
+    """Interval hits per parameter, number converged, and squared errors of both methods.
+
+    Errors: relative for T_e, n_e, n_i; in units of the true T_e for the potentials.
+    """
     hits = {name: 0 for name in CHECKED}
     converged = 0
+    sq = {"bayes": {n: [] for n in ERRORS}, "classical": {n: [] for n in ERRORS}}
     for i in indices:
         cfg, sim = random_case(i)
         res = bp.fit(sim.sweep, config=cfg, seed=i, progress=False)
@@ -53,7 +58,17 @@ def coverage(indices):
         for name in CHECKED:
             e = summ[name]
             hits[name] += e["ci_low"] <= sim.truth[name] <= e["ci_high"]
-    return hits, converged
+        for name in ERRORS:
+            t = sim.truth[name]
+            scale = t if name in ("T_e", "n_e", "n_i") else sim.truth["T_e"]
+            sq["bayes"][name].append(((summ[name]["median"] - t) / scale) ** 2)
+            c = res.classical.get(name)
+            sq["classical"][name].append(((c - t) / scale) ** 2 if c is not None else np.inf)
+    rms = {m: {n: float(np.sqrt(np.mean(v))) for n, v in d.items()} for m, d in sq.items()}
+    return hits, converged, rms
+
+
+ERRORS = ("T_e", "n_e", "n_i", "V_p", "V_f")
 
 
 def band(n, p=0.9, mass=0.99):
@@ -69,18 +84,24 @@ def test_binomial_band_is_what_we_think():
 
 
 def test_coverage_fast_set():
+    """Also: the posterior median's RMS error is at least 2x smaller than the classical method's
+    for T_e, n_e and V_p on the same sweeps (the issue's requirement; the numbers are printed)."""
     n = 24
-    hits, converged = coverage(range(n))
+    hits, converged, rms = coverage(range(n))
+    print("coverage", hits, "rms", rms)
     lo, hi = band(n)
     assert converged == n
     for name, h in hits.items():
         assert lo <= h <= hi, f"{name}: {h}/{n} intervals cover the truth, 99 % band [{lo}, {hi}]"
+    for name in ("T_e", "n_e", "V_p"):
+        assert rms["classical"][name] >= 2 * rms["bayes"][name], (name, rms)
 
 
 @pytest.mark.slow
 def test_coverage_full_set():
     n = 120
-    hits, converged = coverage(range(100, 100 + n))
+    hits, converged, rms = coverage(range(100, 100 + n))
+    print("coverage", hits, "rms", rms)
     lo, hi = band(n)
     assert converged >= n - 2
     for name, h in hits.items():
