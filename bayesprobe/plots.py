@@ -1,8 +1,9 @@
-"""Figures of one fit: the characteristic with its posterior, a corner plot, sampler traces.
+"""Figures of one fit: the characteristic with its posterior, a corner plot, sampler traces,
+and the electron energy distribution.
 
 Every function builds a fresh :class:`matplotlib.figure.Figure` (no pyplot state is
 touched, so it works headless and in worker processes) and returns it; the caller
-saves or discards it.  :func:`save_figures` writes all three atomically.
+saves or discards it.  :func:`save_figures` writes all four atomically.
 
 Figures never evaluate the model on every stored draw: curves and bands use an
 evenly thinned subset, so each figure takes well under two seconds even for
@@ -22,7 +23,7 @@ from matplotlib.patches import Patch
 from .model import plasma_parameter_names, probe_current
 
 __all__ = ["PALETTE", "CONTOUR_LEVELS", "FIT_FIGSIZE", "plot_fit", "plot_corner", "plot_trace",
-           "save_figures", "electron_current_draws"]
+           "plot_eedf", "save_figures", "electron_current_draws"]
 
 #: One palette for every figure: hues chosen to stay distinguishable with the common
 #: colour-vision deficiencies, and always paired with distinct line styles or markers.
@@ -666,11 +667,11 @@ def _save_atomic(fig: Figure, path: Path, fmt: str, dpi) -> Path:
 
 
 def save_figures(result, out_dir, *, formats=("png",), dpi=110, truth=None) -> list[Path]:
-    """Write ``fit``, ``corner`` and ``trace`` figures into ``out_dir``.
+    """Write ``fit``, ``corner``, ``trace`` and ``eedf`` figures into ``out_dir``.
 
     Each file is written to a temporary name in the same directory and renamed
     into place, so readers never see a partial image.  Returns the paths in the
-    order fit, corner, trace (each in every format).
+    order fit, corner, trace, eedf (each in every format).
     """
     if isinstance(formats, str):
         formats = (formats,)
@@ -687,7 +688,8 @@ def save_figures(result, out_dir, *, formats=("png",), dpi=110, truth=None) -> l
     out.mkdir(parents=True, exist_ok=True)
     makers = (("fit", lambda: plot_fit(result, truth=truth)),
               ("corner", lambda: plot_corner(result, truth=truth)),
-              ("trace", lambda: plot_trace(result)))
+              ("trace", lambda: plot_trace(result)),
+              ("eedf", lambda: plot_eedf(result, truth=truth)))
     paths = []
     for stem, make in makers:
         fig = make()
@@ -697,3 +699,106 @@ def save_figures(result, out_dir, *, formats=("png",), dpi=110, truth=None) -> l
         finally:
             fig.clear()
     return paths
+
+
+# ----------------------------------------------------------------------------- energy distribution
+
+_EEDF_MARKERS = 150     # at most this many Druyvesteyn points are drawn
+
+
+def _true_eepf(truth_v, energy):
+    """EEPF of known parameters (Maxwellian or two Maxwellians), or None if they are incomplete."""
+    from .eedf import maxwellian_eepf
+    if "n_e" not in truth_v:
+        return None
+    n = truth_v["n_e"]
+    if all(k in truth_v for k in ("T_e_cold", "T_e_hot", "hot_fraction")):
+        a = truth_v["hot_fraction"]
+        return (1.0 - a) * maxwellian_eepf(energy, n, truth_v["T_e_cold"]) + \
+            a * maxwellian_eepf(energy, n, truth_v["T_e_hot"])
+    if "T_e" in truth_v:
+        return maxwellian_eepf(energy, n, truth_v["T_e"])
+    return None
+
+
+def plot_eedf(result, *, druyvesteyn=True, truth=None) -> Figure:
+    """Electron energy probability function (EEPF) of a fit, log-linear.
+
+    The EEPF f_p(eps) = g(eps)/sqrt(eps) is drawn on a log axis against a linear
+    energy axis, where a Maxwellian is a straight line of slope -1/T_e and a hot
+    tail shows as a bend. Shown: the posterior median of the fitted
+    distribution with its central credible band (``result.credible_level``,
+    from thinned draws, see :func:`bayesprobe.eedf.model_eedf`), and, with
+    ``druyvesteyn``, the model-free estimate from the second derivative of the
+    measured current (:func:`bayesprobe.eedf.druyvesteyn_eedf`, with V_p the
+    posterior median, the probe area of the fit, and the ion current removed as
+    in the classical analysis: a straight line, or an I^2 line for a cylinder
+    with orbital-motion-limited ions) as open teal circles. ``truth`` (dict with
+    ``n_e`` and ``T_e``, or ``T_e_cold``/``T_e_hot``/``hot_fraction``) adds the
+    true EEPF as a dash-dotted black line.
+    """
+    from .eedf import druyvesteyn_eedf, model_eedf
+
+    truth_v = _truth_values(truth)
+    level = result.credible_level
+    m = model_eedf(result)
+    eps = m["energy_eV"]
+    fig = Figure(figsize=(7.6, 5.4), layout="constrained")
+    ax = fig.add_subplot()
+    ax.fill_between(eps, m["eepf_low"], m["eepf_high"], color=PALETTE["band"], lw=0, zorder=1)
+    ax.plot(eps, m["eepf_median"], color=PALETTE["model"], lw=1.6, zorder=3)
+    handles = [Line2D([], [], color=PALETTE["model"], lw=1.6,
+                      label=f"fit ({result.model}): posterior median"),
+               Patch(color=PALETTE["band"], label=f"{level * 100:g} % credible band")]
+    peak = float(np.max(m["eepf_high"]))
+    bottom = max(0.5 * float(np.min(m["eepf_median"])), 1e-5 * peak)
+    notes = []
+    if druyvesteyn:
+        V_p = float(np.median(_flat(result, "V_p"))) if "V_p" in result.draws else math.nan
+        probe = result.config.probe
+        ion = "oml" if probe.geometry == "cylindrical" and result.config.ion_collection in ("oml", "auto") \
+            else None
+        try:
+            d = druyvesteyn_eedf(result.voltage, result.current, V_p, probe.area, ion_current=ion)
+        except ValueError as exc:
+            d = None
+            notes.append((f"no Druyvesteyn estimate: {exc}", PALETTE["flag"]))
+        if d is not None and d["energy_eV"].size:
+            E, fp = d["energy_eV"], d["eepf"]
+            keep = (fp > 0) & (E <= eps[-1])
+            stride = max(1, int(math.ceil(np.count_nonzero(keep) / _EEDF_MARKERS)))
+            ax.plot(E[keep][::stride], fp[keep][::stride], ls="none", marker="o", ms=3.2, mfc="none",
+                    mew=0.7, color=PALETTE["classical"], zorder=2.5)
+            handles.append(Line2D([], [], ls="none", marker="o", ms=4, mfc="none",
+                                  color=PALETTE["classical"],
+                                  label=f"Druyvesteyn, d²I/dV² (window {d['window_V']:.2g} V)"))
+            notes.append((f"Druyvesteyn, {d['energy_range'][0]:.2g}–{d['energy_range'][1]:.3g} eV: "
+                          f"n_e = {d['n_e']:.3g} m⁻³, T_eff = {d['T_eff']:.3g} eV", PALETTE["classical"]))
+            if d["flags"]:
+                notes.append(("flags: " + ", ".join(d["flags"]), PALETTE["flag"]))
+    p = m["parameters"]
+    T_fit = p["T_e"] if "T_e" in p else \
+        (1 - p["hot_fraction"]) * p["T_e_cold"] + p["hot_fraction"] * p["T_e_hot"]
+    notes.insert(0, (f"fit median: n_e = {np.median(p['n_e']):.3g} m⁻³, "
+                     f"T_eff = {np.median(T_fit):.3g} eV", PALETTE["model"]))
+    true_fp = _true_eepf(truth_v, eps)
+    if true_fp is not None:
+        ax.plot(eps, true_fp, color=PALETTE["truth"], lw=1.0, ls=(0, (4, 2, 1, 2)), zorder=3.5)
+        handles.append(Line2D([], [], color=PALETTE["truth"], lw=1.0, ls=(0, (4, 2, 1, 2)),
+                              label="true EEPF"))
+    ax.set_yscale("log")
+    ax.set_xlim(0.0, float(eps[-1]))
+    ax.set_ylim(bottom, 2.0 * peak)
+    ax.set_xlabel("electron energy ε [eV]")
+    ax.set_ylabel("EEPF [m⁻³ eV⁻³ᐟ²]")
+    ax.grid(True, which="major", color=PALETTE["grid"], lw=0.6)
+    ax.legend(handles=handles, loc="upper right", fontsize=8, frameon=True, framealpha=0.9)
+    y = 0.03
+    for text, color in reversed(notes):
+        ax.text(0.02, y, text, transform=ax.transAxes, ha="left", va="bottom", fontsize=7.5, color=color,
+                bbox={"facecolor": "white", "edgecolor": "none", "alpha": 0.85, "pad": 1.2}, zorder=5)
+        y += 0.05
+    ax.set_title(f"{_title(result)}\nEEPF f(ε) = g(ε)/√ε: fitted distribution and model-free "
+                 "estimate; a Maxwellian is a straight line", fontsize=9.5, loc="left")
+    return fig
+

@@ -292,14 +292,15 @@ def test_save_figures_writes_readable_pngs_of_the_right_size(result, tmp_path, m
     monkeypatch.setattr(plots, "_save_atomic", record)
     out = tmp_path / "figs"
     paths = plots.save_figures(result, out, dpi=50)
-    assert [p.name for p in paths] == ["fit.png", "corner.png", "trace.png"]
+    assert [p.name for p in paths] == ["fit.png", "corner.png", "trace.png", "eedf.png"]
     for p in paths:
         assert p.parent == out and p.stat().st_size > 1000
         img = mpimg.imread(p)
         w, h = sizes[p.name]
         assert img.shape[:2] == (round(h), round(w))
     assert sizes["fit.png"][0] == pytest.approx(plots.FIT_FIGSIZE[0] * 50)
-    assert sorted(x.name for x in out.iterdir()) == ["corner.png", "fit.png", "trace.png"]  # no temp files
+    assert sorted(x.name for x in out.iterdir()) == ["corner.png", "eedf.png", "fit.png",
+                                                     "trace.png"]  # no temp files
 
 
 def test_save_figures_formats_and_errors(result, tmp_path):

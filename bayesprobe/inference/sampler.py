@@ -1,6 +1,6 @@
 """The MCMC driver: independent emcee ensembles run until the convergence criteria hold.
 
-Convergence criteria (all must hold, checked at chain-length doublings):
+Convergence criteria (all must hold, checked as the chains grow by at least 25 % at a time):
 
 1. every ensemble's kept chain is at least ``min_tau_multiple`` (default 50)
    integrated autocorrelation times long (emcee's estimator, Goodman & Weare 2010;
@@ -237,9 +237,10 @@ def run_ensembles(logpost, center, cov, *, settings: SamplerSettings = SamplerSe
             break
         if n_steps >= settings.max_steps:
             break
-        # next check: long enough to meet the tau criterion if tau is right, at least double
+        # next check: long enough to meet the tau criterion if tau is right (10 % margin), and at
+        # least 25 % longer than now so that tau is re-estimated on a materially longer chain
         needed = int(np.ceil(settings.min_tau_multiple * tau_max / (1 - settings.burn_fraction) * 1.1))
-        target = min(settings.max_steps, max(2 * n_steps, needed))
+        target = min(settings.max_steps, max(int(1.25 * n_steps), needed))
     if bar is not None:
         bar.close()
     burn = int(settings.burn_fraction * n_steps)
