@@ -166,6 +166,15 @@ class FitResult:
         from .plots import plot_trace
         return plot_trace(self, **kwargs)
 
+    def plot_eedf(self, **kwargs):
+        from .plots import plot_eedf
+        return plot_eedf(self, **kwargs)
+
+    def eedf(self, **kwargs) -> dict:
+        """The fitted distribution's EEDF/EEPF with its credible band (see :func:`bayesprobe.eedf.model_eedf`)."""
+        from .eedf import model_eedf
+        return model_eedf(self, **kwargs)
+
     def table(self) -> str:
         """A compact text table: parameter, median, credible interval, classical value."""
         rows = [f"{'parameter':<14}{'unit':<7}{'median':>12}{'ci_low':>12}{'ci_high':>12}{'classical':>12}"]

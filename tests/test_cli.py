@@ -127,7 +127,7 @@ def test_fit_writes_contract_files(tmp_path, sweep_file):
     assert s["diagnostics"]["ess_bulk_min"] >= 1000
     assert set(s["classical"]) >= {"T_e", "n_e", "n_i", "V_f", "V_p"}
     assert "V_p" in s["correlations"]["T_e"]
-    for f in ("posterior.nc", "parameters.csv", "fit.png", "corner.png", "trace.png"):
+    for f in ("posterior.nc", "parameters.csv", "fit.png", "corner.png", "trace.png", "eedf.png"):
         assert (out / f).stat().st_size > 0, f
     from bayesprobe.inference.arviz_adapter import load_inference_data
     idata = load_inference_data(out / "posterior.nc")
