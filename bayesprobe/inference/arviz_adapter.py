@@ -53,8 +53,10 @@ def loo(idata, *, reff: float | None = None):
 
 
 def compare(models: dict):
+    # arviz 0.23 triggers pandas deprecation warnings inside compare; Pareto-k problems are
+    # reported by bayesprobe itself from the loo results
     with warnings.catch_warnings():
-        warnings.simplefilter("ignore", UserWarning)
+        warnings.simplefilter("ignore")
         return az.compare(models, ic="loo", var_name="current")
 
 
