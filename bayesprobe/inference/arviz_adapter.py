@@ -13,7 +13,7 @@ with warnings.catch_warnings():
     import arviz as az  # noqa: E402
 
 __all__ = ["az", "rhat_rank", "ess_bulk", "ess_tail", "build_inference_data", "loo", "compare",
-           "load_inference_data"]
+           "load_inference_data", "psis_smooth"]
 
 
 def _dataset(array_chain_draw: np.ndarray):
@@ -62,3 +62,16 @@ def compare(models: dict):
 
 def load_inference_data(path):
     return az.from_netcdf(path)
+
+
+def psis_smooth(log_weights: np.ndarray) -> tuple[np.ndarray, float]:
+    """Pareto-smoothed importance weights of independent draws (Vehtari et al., JMLR 25(72), 2024).
+
+    ``log_weights`` is a 1-D array of raw log importance ratios (``-inf`` for zero weight).
+    Returns the smoothed log weights, normalised so that their exponentials sum to one,
+    and the Pareto shape estimate k-hat of the ratios' right tail. The draws are
+    independent, so the relative efficiency passed on is 1.
+    """
+    lw = np.asarray(log_weights, dtype=float).copy()
+    smoothed, khat = az.psislw(lw, reff=1.0, normalize=True)
+    return np.asarray(smoothed, dtype=float), float(khat)
