@@ -62,6 +62,16 @@ def _positive_float(text):
     return v
 
 
+def _positive_int(text):
+    try:
+        v = int(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"must be a whole number, got {text!r}") from None
+    if v < 1:
+        raise argparse.ArgumentTypeError(f"must be at least 1, got {text!r}")
+    return v
+
+
 def _nonneg_int(text):
     try:
         v = int(text)
@@ -116,6 +126,9 @@ def _add_fit_options(p):
                    help="TOML file with [prior.NAME] tables (kind, lower, upper, mean, sd)")
     g.add_argument("--student-t", type=_positive_float, metavar="NU",
                    help="Student-t likelihood with NU degrees of freedom (robust to outliers)")
+    g.add_argument("--engine", choices=["mcmc", "fast", "auto"], default="mcmc",
+                   help="mcmc: emcee until converged (default); fast/auto: importance sampling from the "
+                        "Laplace approximation, checked by Pareto k-hat, with emcee as the fallback")
     g.add_argument("--max-steps", type=_nonneg_int, default=20000,
                    help="sampler step budget per ensemble before giving up (default 20000)")
     g.add_argument("--sign", choices=["auto", "electron-positive", "ion-positive"], default="auto",
@@ -142,6 +155,37 @@ def build_parser() -> argparse.ArgumentParser:
     f.add_argument("--out", type=Path, required=True, help="output folder (nothing is half-written there)")
     _add_physics_options(f)
     _add_fit_options(f)
+
+    b = sub.add_parser(
+        "batch", help="many sweeps (files, folders, multi-sweep files) -> one results table; resumable",
+        formatter_class=argparse.RawDescriptionHelpFormatter,
+        description="Fit many sweeps in parallel. Every sweep's result is written to OUT/sweeps/<id>.json the "
+                    "moment it finishes; rerunning the same command skips finished sweeps. At the end OUT/"
+                    "results.csv, OUT/results.nc and OUT/profiles.png hold one row per sweep.",
+        epilog="inputs: sweep files, folders (their sweep files) or quoted glob patterns. A file may hold many\n"
+               "sweeps: an .npz with current of shape (sweeps, points), voltage (points,) or (sweeps, points)\n"
+               "and optional per-sweep arrays such as time or position; an .npy of shape (sweeps, 2, points);\n"
+               "a CSV with a sweep_id column (each sweep's rows together).\n\n"
+               "exit status: 0 every sweep converged; 2 unusable input or options (nothing fitted);\n"
+               "3 some sweeps did not converge and none failed; 4 some sweeps failed (reasons in\n"
+               "results.csv); 130 interrupted (finished sweeps are kept: rerun to resume).")
+    b.add_argument("inputs", nargs="+", metavar="INPUT", help="sweep file, folder or quoted glob pattern")
+    b.add_argument("--out", type=Path, required=True, help="output folder; rerun with the same folder to resume")
+    b.add_argument("--workers", type=_positive_int, metavar="N",
+                   help="parallel worker processes (default: the usable cores); with --dask local, Dask workers")
+    b.add_argument("--dask", metavar="ADDRESS|local",
+                   help="run on Dask: 'local' starts a local cluster, tcp://HOST:PORT joins a running scheduler "
+                        "(needs pip install 'bayesprobe[dask]')")
+    b.add_argument("--sweep-column", metavar="NAME",
+                   help="sweep-id column of multi-sweep text files (default: sweep_id or sweep)")
+    b.add_argument("--sweep-table", type=Path, metavar="CSV",
+                   help="per-sweep probe settings: sweep_id and any of geometry, radius, length, area (SI), "
+                        "ion, ion_mass, ion_collection, ion_temperature")
+    b.add_argument("--keep-posteriors", action="store_true",
+                   help="also write every sweep's full posterior to OUT/posteriors/<id>.nc")
+    b.add_argument("--retry-failed", action="store_true", help="fit sweeps recorded as failed again")
+    _add_physics_options(b)
+    _add_fit_options(b)
 
     s = sub.add_parser("simulate", help="synthetic sweep(s) with the truth written beside them")
     s.add_argument("--out", type=Path, required=True, help="output file: .csv or .npz (truth goes to NAME.truth.json)")
@@ -239,7 +283,7 @@ def cmd_fit(args) -> int:
     try:
         result = fitting.fit(sweep, config=config, model=args.model, credible_level=args.credible_level,
                              priors=priors, student_nu=args.student_t, seed=args.seed, sampler=settings,
-                             progress=None if not args.quiet else False)
+                             progress=None if not args.quiet else False, engine=args.engine)
     except ValueError as exc:          # bad prior values and the like: one line
         raise InputError(" ".join(str(exc).split())) from None
     write_fit_outputs(result, args.out, figures=not args.no_figures)
@@ -321,6 +365,36 @@ def cmd_simulate(args) -> int:
     return EXIT_OK
 
 
+def cmd_batch(args) -> int:
+    from .batch import fit_many
+    from .inference.sampler import SamplerSettings
+
+    config = _config_from(args)
+    priors = _read_priors(args.priors)
+    settings = SamplerSettings(max_steps=max(args.max_steps, 100))
+    try:
+        summary = fit_many(args.inputs, out_dir=args.out, config=config, model=args.model,
+                           credible_level=args.credible_level, seed=args.seed, workers=args.workers,
+                           dask=args.dask, sampler=settings, priors=priors, student_nu=args.student_t,
+                           sign=args.sign, voltage_column=args.voltage_column, current_column=args.current_column,
+                           sweep_column=args.sweep_column, sweep_table=args.sweep_table,
+                           keep_posteriors=args.keep_posteriors, retry_failed=args.retry_failed,
+                           figures=not args.no_figures, progress=None if not args.quiet else False,
+                           engine=getattr(args, "engine", "mcmc"))
+    except KeyboardInterrupt:
+        print(f"interrupted; finished sweeps are kept in {args.out} - rerun the same command to resume",
+              file=sys.stderr)
+        return 130
+    _say(args, summary.line())
+    for sid, reason in summary.failed[:20]:
+        _say(args, f"  failed {sid}: {reason}")
+    if len(summary.failed) > 20 or summary.n_failed > len(summary.failed):
+        _say(args, f"  ... {summary.n_failed - 20} more failures, see results.csv")
+    if not args.quiet:
+        print(f"results: {args.out / 'results.csv'}, {args.out / 'results.nc'}")
+    return summary.exit_status
+
+
 def cmd_demo(args) -> int:
     from .demo import run_demo
     return run_demo(args.out, seed=args.seed, quiet=args.quiet)
@@ -333,7 +407,7 @@ def main(argv=None) -> int:
         if args.command is None:
             parser.print_help()
             return EXIT_OK
-        handler = {"fit": cmd_fit, "simulate": cmd_simulate, "demo": cmd_demo}[args.command]
+        handler = {"fit": cmd_fit, "simulate": cmd_simulate, "demo": cmd_demo, "batch": cmd_batch}[args.command]
         return handler(args)
     except InputError as exc:
         print(f"error: {' '.join(str(exc).split())}", file=sys.stderr)

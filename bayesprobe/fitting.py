@@ -22,6 +22,7 @@ __all__ = ["fit", "make_config", "N_STORED_DRAWS"]
 #: posterior draws kept in the result (thinned evenly from the converged chains)
 N_STORED_DRAWS = 2000
 MODEL_CHOICES = ELECTRON_MODELS + ("auto",)
+ENGINES = ("mcmc", "fast", "auto")
 #: step budget of the two-temperature fit inside ``model="auto"`` before the comparison
 AUTO_RICH_MAX_STEPS = 4000
 
@@ -93,7 +94,7 @@ def _starts(params, cls, V, I, config):
 
 
 def _fit_one(sweep: Sweep, config: ModelConfig, *, credible_level, priors, student_nu, seed, settings,
-             progress, cls) -> FitResult:
+             progress, cls, engine="mcmc", is_settings=None) -> FitResult:
     V, I = sweep.voltage, sweep.current
     params = default_parameters(config, V, I).with_priors(priors)
     logpost = LogPosterior(V, I, config, params, student_nu=student_nu)
@@ -102,15 +103,31 @@ def _fit_one(sweep: Sweep, config: ModelConfig, *, credible_level, priors, stude
     mp = find_map(logpost, starts)
     t_map = time.perf_counter() - t0
     ss = np.random.SeedSequence(seed)
-    s_sampler, s_ppc = ss.spawn(2)
-    run = run_ensembles(logpost, mp.z, mp.cov, settings=settings, seed=s_sampler, progress=progress)
-
-    # thin evenly to about N_STORED_DRAWS draws, chain = independent ensemble
-    E, S, W, d = run.chains.shape
-    thin = max(1, int(S * W * E / N_STORED_DRAWS))
-    Z = run.chains[:, ::thin]                           # (E, S', W, d)
-    Sp = Z.shape[1]
-    Zflat = Z.reshape(-1, d)
+    s_sampler, s_ppc, s_is = ss.spawn(3)          # the first two match the MCMC-only seeding
+    d = len(params)
+    is_run = None
+    fallback_reason = None
+    if engine in ("fast", "auto"):
+        from .inference.importance import ImportanceSettings, importance_sample
+        is_settings = is_settings or ImportanceSettings()
+        is_run = importance_sample(logpost, mp.z, mp.cov, settings=is_settings, seed=s_is)
+        if not is_run.accepted:
+            fallback_reason = "; ".join(is_run.reasons)
+    use_is = is_run is not None and is_run.accepted
+    if use_is:
+        E, Sp, W, thin = 1, is_run.draws.shape[0], 1, 1
+        Zflat = is_run.draws
+        lp_flat = is_run.log_prob
+        run = None
+    else:
+        run = run_ensembles(logpost, mp.z, mp.cov, settings=settings, seed=s_sampler, progress=progress)
+        # thin evenly to about N_STORED_DRAWS draws, chain = independent ensemble
+        E, S, W, d = run.chains.shape
+        thin = max(1, int(S * W * E / N_STORED_DRAWS))
+        Z = run.chains[:, ::thin]                           # (E, S', W, d)
+        Sp = Z.shape[1]
+        Zflat = Z.reshape(-1, d)
+        lp_flat = run.log_prob[:, ::thin].reshape(-1)
     t_post = time.perf_counter()
     phys = params.to_physical(Zflat)
     derived = derived_quantities(phys, config)
@@ -126,40 +143,56 @@ def _fit_one(sweep: Sweep, config: ModelConfig, *, credible_level, priors, stude
     draws.update({n: cd(v) for n, v in derived.items()})
     units = units_for(list(draws), params)
 
-    from .inference.arviz_adapter import ess_bulk, rhat_rank
-    ess_all, rhat_all = {}, {}
-    for n, x in draws.items():
-        if np.all(np.isfinite(x)) and np.ptp(x) > 0:
-            ess_all[n] = ess_bulk(x)
-            rhat_all[n] = rhat_rank(x)
-    # sampled parameters: the run's own diagnostics over the full kept chains
-    for j, n in enumerate(params.names):
-        ess_all[n] = float(run.ess[j])
-        rhat_all[n] = float(run.rhat[j])
-    reported = [n for n in draws if n in ess_all]
-    ess_min = float(min(ess_all[n] for n in reported))
-    rhat_max = float(max(rhat_all[n] for n in reported))
-    converged = bool(run.converged and ess_min >= settings.ess_min and rhat_max <= settings.rhat_max)
-    reasons = list(run.reasons)
-    if run.converged and not converged:
-        reasons.append(f"derived quantities: ESS {ess_min:.0f}, R-hat {rhat_max:.4f}")
+    if use_is:
+        # all quantities share the importance weights: one ESS for everything, no R-hat
+        ess_all = {n: float(is_run.ess) for n in draws}
+        rhat_all = {}
+        ess_min, rhat_max = float(is_run.ess), None
+        converged = True
+        reasons = []
+        engine_diag = {"tau_max": None, "tau": {}, "n_steps": 0, "burn_in": 0, "thin": 1, "n_ensembles": 0,
+                       "n_walkers": 0, "acceptance": None, "history": is_run.history,
+                       "timings_s": {"map": t_map, "importance": is_run.timings, "posterior_processing": t_post}}
+    else:
+        from .inference.arviz_adapter import ess_bulk, rhat_rank
+        ess_all, rhat_all = {}, {}
+        for n, x in draws.items():
+            if np.all(np.isfinite(x)) and np.ptp(x) > 0:
+                ess_all[n] = ess_bulk(x)
+                rhat_all[n] = rhat_rank(x)
+        # sampled parameters: the run's own diagnostics over the full kept chains
+        for j, n in enumerate(params.names):
+            ess_all[n] = float(run.ess[j])
+            rhat_all[n] = float(run.rhat[j])
+        reported = [n for n in draws if n in ess_all]
+        ess_min = float(min(ess_all[n] for n in reported))
+        rhat_max = float(max(rhat_all[n] for n in reported))
+        converged = bool(run.converged and ess_min >= settings.ess_min and rhat_max <= settings.rhat_max)
+        reasons = list(run.reasons)
+        if run.converged and not converged:
+            reasons.append(f"derived quantities: ESS {ess_min:.0f}, R-hat {rhat_max:.4f}")
+        engine_diag = {"tau_max": float(np.max(run.tau)),
+                       "tau": {n: float(t) for n, t in zip(params.names, run.tau)},
+                       "n_steps": int(run.n_steps), "burn_in": int(run.burn), "thin": int(thin),
+                       "n_ensembles": int(E), "n_walkers": int(W), "acceptance": run.acceptance,
+                       "history": run.history,
+                       "timings_s": {"map": t_map, **run.timings, "posterior_processing": t_post}}
 
     diagnostics = {
         "r_hat_max": rhat_max, "ess_bulk_min": ess_min, "n_draws": int(E * Sp * W), "converged": converged,
+        "engine": "importance" if use_is else "mcmc", "engine_requested": engine,
         "criteria": {"tau_multiple_min": settings.min_tau_multiple, "r_hat_max": settings.rhat_max,
                      "ess_bulk_min": settings.ess_min},
-        "unmet": reasons, "tau_max": float(np.max(run.tau)),
-        "tau": {n: float(t) for n, t in zip(params.names, run.tau)},
-        "ess_bulk": ess_all, "r_hat": rhat_all,
-        "n_steps": int(run.n_steps), "burn_in": int(run.burn), "thin": int(thin),
-        "n_ensembles": int(E), "n_walkers": int(W), "acceptance": run.acceptance,
-        "map_hessian_ok": bool(mp.hessian_ok), "history": run.history,
-        "timings_s": {"map": t_map, **run.timings, "posterior_processing": t_post},
+        "unmet": reasons, "ess_bulk": ess_all, "r_hat": rhat_all,
+        "map_hessian_ok": bool(mp.hessian_ok), **engine_diag,
     }
+    if is_run is not None:
+        diagnostics.update({"khat": float(is_run.khat), "is_ess": float(is_run.ess), "is_rounds": is_run.n_rounds,
+                            "is_n_evaluations": int(is_run.n_evaluations), "fallback_reason": fallback_reason})
+        diagnostics["criteria"].update({"khat_max": is_settings.khat_max, "is_ess_min": is_settings.ess_min})
 
     coords = {"point": np.arange(V.size)}
-    dims = {"current": ["point"]}
-    sample_stats = {"lp": cd(run.log_prob[:, ::thin].reshape(-1))}
+    sample_stats = {"lp": cd(lp_flat)}
     idata = build_inference_data(
         posterior=draws,
         log_likelihood={"current": cd(loglik)},
@@ -172,7 +205,6 @@ def _fit_one(sweep: Sweep, config: ModelConfig, *, credible_level, priors, stude
                "units": ";".join(f"{k}={v}" for k, v in units.items()),
                "credible_level": credible_level, "thin_steps": thin},
     )
-    del dims
 
     cls_dict = cls.to_dict() if not isinstance(cls, Exception) else {"error": str(cls)}
     map_phys = {n: float(v[0]) for n, v in params.to_physical(mp.z[None]).items()}
@@ -189,7 +221,7 @@ def fit(voltage, current=None, *, probe: Probe | None = None, ion="Ar", ion_mass
         ion_collection="auto", model="maxwellian", credible_level=0.9, priors=None, student_nu=None,
         quasi_neutral=False, T_i=0.026, bohm_factor=float(np.exp(-0.5)), seed: int | None = 0,
         sampler: SamplerSettings | None = None, progress=None, sign="auto",
-        config: ModelConfig | None = None) -> FitResult:
+        config: ModelConfig | None = None, engine: str = "mcmc") -> FitResult:
     """Fit the whole characteristic of one sweep and return its posterior.
 
     Parameters
@@ -218,6 +250,10 @@ def fit(voltage, current=None, *, probe: Probe | None = None, ion="Ar", ion_mass
         Ensembles, walkers, step budget and convergence thresholds.
     config : ModelConfig, optional
         A complete model configuration (overrides the individual physics options).
+    engine : {"mcmc", "fast", "auto"}
+        ``mcmc``: emcee ensembles until converged. ``fast`` (= ``auto``): importance
+        sampling from the Laplace approximation, accepted only when the Pareto k-hat
+        and the importance-sampling ESS pass; otherwise emcee runs from the same optimum.
 
     Returns
     -------
@@ -229,6 +265,8 @@ def fit(voltage, current=None, *, probe: Probe | None = None, ion="Ar", ion_mass
         raise ValueError(f"model must be one of {', '.join(MODEL_CHOICES)}, got {model!r}")
     if student_nu is not None and not (np.isfinite(student_nu) and student_nu > 0):
         raise ValueError(f"student_nu must be a positive number, got {student_nu!r}")
+    if engine not in ENGINES:
+        raise ValueError(f"engine must be one of {', '.join(ENGINES)}, got {engine!r}")
     if seed is not None and not isinstance(seed, (int, np.integer)):
         raise ValueError(f"seed must be an integer, got {seed!r}")
     sweep = _as_sweep(voltage, current, sign)
@@ -247,7 +285,7 @@ def fit(voltage, current=None, *, probe: Probe | None = None, ion="Ar", ion_mass
             s = replace(settings, max_steps=AUTO_RICH_MAX_STEPS)
         results[kind] = _fit_one(sweep, config.with_(electrons=kind), credible_level=credible_level,
                                  priors=_priors_for(priors, kind), student_nu=student_nu, seed=seed,
-                                 settings=s, progress=progress, cls=cls)
+                                 settings=s, progress=progress, cls=cls, engine=engine)
     if len(results) == 1:
         return results[kinds[0]]
     from .comparison import compare_models
@@ -255,7 +293,7 @@ def fit(voltage, current=None, *, probe: Probe | None = None, ion="Ar", ion_mass
     if chosen.model == "bi-maxwellian" and not chosen.converged and settings.max_steps > AUTO_RICH_MAX_STEPS:
         full = _fit_one(sweep, config.with_(electrons="bi-maxwellian"), credible_level=credible_level,
                         priors=_priors_for(priors, "bi-maxwellian"), student_nu=student_nu, seed=seed,
-                        settings=settings, progress=progress, cls=cls)
+                        settings=settings, progress=progress, cls=cls, engine=engine)
         results["bi-maxwellian"] = full
         chosen = compare_models(results)
     return chosen

@@ -324,7 +324,11 @@ def _table_text(result, scales, classical, truth) -> list[tuple[str, str, dict]]
         if "sigma_rel" in result.draws:
             noise += f", σ_rel {100 * float(np.median(_flat(result, 'sigma_rel'))):.3g} %"
         rows.append((noise, PALETTE["data"], {}))
-    if "r_hat_max" in d and "ess_bulk_min" in d:
+    if d.get("engine") == "importance":
+        rows.append((f"importance sampling: k̂ {d.get('khat', float('nan')):.2f} · ESS {d['ess_bulk_min']:.0f}",
+                     PALETTE["data"], {}))
+        rows.append(("importance weights accepted", PALETTE["classical"], {"weight": "bold"}))
+    elif d.get("r_hat_max") is not None and d.get("ess_bulk_min") is not None:
         ok = bool(d.get("converged", False))
         rows.append((f"R̂ max {d['r_hat_max']:.3f} · ESS min {d['ess_bulk_min']:.0f}",
                      PALETTE["data"], {}))
