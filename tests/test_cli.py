@@ -152,3 +152,23 @@ def test_not_converged_exit_3_results_written(tmp_path, sweep_file):
 def test_main_returns_code_without_exiting(tmp_path, capsys):
     assert main(["fit", str(tmp_path / "none.csv"), "--out", str(tmp_path / "o")]) == 2
     assert "not found" in capsys.readouterr().err
+
+
+def test_fast_engine_records_itself_and_agrees_with_mcmc(tmp_path, sweep_file):
+    """--engine fast: importance sampling accepted on a clean sweep (Pareto k-hat below its threshold),
+    engine recorded in summary.json, and medians equal to the MCMC run's within 5 combined Monte-Carlo
+    standard errors: a median's MC sd is about 1.25 sd/sqrt(ESS) (asymptotic variance of the sample
+    median of a normal), so with ESS >= 1000 for both runs 5 * sqrt(2) * 1.25 / sqrt(1000) = 0.28 sd."""
+    code, _, err = run_cli("fit", sweep_file, "--out", tmp_path / "fast", "--engine", "fast", "--quiet",
+                           "--no-figures", "--seed", "3")
+    assert code == 0, err
+    s = json.loads((tmp_path / "fast" / "summary.json").read_text())
+    d = s["diagnostics"]
+    assert d["engine"] == "importance" and d["engine_requested"] == "fast"
+    assert d["khat"] < d["criteria"]["khat_max"]
+    assert d["ess_bulk_min"] >= 1000
+    code, _, err = run_cli("fit", sweep_file, "--out", tmp_path / "mcmc", "--quiet", "--no-figures", "--seed", "3")
+    m = json.loads((tmp_path / "mcmc" / "summary.json").read_text())
+    for name in ("T_e", "n_e", "n_i", "V_p", "V_f"):
+        a, b = s["parameters"][name], m["parameters"][name]
+        assert abs(a["median"] - b["median"]) < 0.28 * b["sd"], (name, a, b)
