@@ -149,7 +149,11 @@ def _diagnostics(chains, settings):
     E, S, W, d = chains.shape
     taus = np.empty((E, d))
     for e in range(E):
-        taus[e] = emcee.autocorr.integrated_time(chains[e], tol=0, quiet=True)
+        with np.errstate(invalid="ignore", divide="ignore"):
+            taus[e] = emcee.autocorr.integrated_time(chains[e], tol=0, quiet=True)
+    # a walker that never moved in the kept chain makes the estimate undefined: treat it as
+    # "as long as the chain" so the convergence criteria fail and sampling continues
+    taus = np.where(np.isfinite(taus), taus, float(S))
     rhat = np.empty(d)
     ess = np.empty(d)
     n_total = E * S * W
