@@ -187,6 +187,13 @@ def build_parser() -> argparse.ArgumentParser:
     _add_physics_options(b)
     _add_fit_options(b)
 
+    r = sub.add_parser("report", help="self-contained HTML report of a fit, demo or batch results folder")
+    r.add_argument("results", type=Path, metavar="RESULTS_DIR",
+                   help="a fit folder (summary.json), a folder of fit folders (bayesprobe demo output) "
+                        "or a batch folder (results.csv, sweeps/)")
+    r.add_argument("--out", type=Path, metavar="FILE",
+                   help="HTML file to write (default RESULTS_DIR/report.html); written atomically")
+
     s = sub.add_parser("simulate", help="synthetic sweep(s) with the truth written beside them")
     s.add_argument("--out", type=Path, required=True, help="output file: .csv or .npz (truth goes to NAME.truth.json)")
     _add_physics_options(s)
@@ -395,6 +402,13 @@ def cmd_batch(args) -> int:
     return summary.exit_status
 
 
+def cmd_report(args) -> int:
+    from .report import build_report
+    path = build_report(args.results, out=args.out)   # InputError (no results) -> one line, exit 2
+    print(f"report written to {path}")
+    return EXIT_OK
+
+
 def cmd_demo(args) -> int:
     from .demo import run_demo
     return run_demo(args.out, seed=args.seed, quiet=args.quiet)
@@ -407,7 +421,7 @@ def main(argv=None) -> int:
         if args.command is None:
             parser.print_help()
             return EXIT_OK
-        handler = {"fit": cmd_fit, "simulate": cmd_simulate, "demo": cmd_demo, "batch": cmd_batch}[args.command]
+        handler = {"fit": cmd_fit, "simulate": cmd_simulate, "demo": cmd_demo, "batch": cmd_batch, "report": cmd_report}[args.command]
         return handler(args)
     except InputError as exc:
         print(f"error: {' '.join(str(exc).split())}", file=sys.stderr)

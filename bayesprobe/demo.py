@@ -102,6 +102,9 @@ def run_demo(out: Path, *, seed: int = 0, quiet: bool = False, workers: int | No
             say(f"{r['sweep_id']}: {r['reasoning']}")
     say("\nSYNTHETIC data: the truth column is known because the demo sweeps were simulated. "
         "'classical' is the automated windowed textbook analysis of the same sweep.")
+    from .report import build_report
+    report = build_report(out)
     say(f"results (summary.json, parameters.csv, posterior.nc, figures) for each sweep are in {out}/ "
         f"- total {time.perf_counter() - t0:.0f} s")
+    say(f"report: {report} (one self-contained HTML page; open it in a browser)")
     return 0 if all(r["converged"] for r in done) else 3
