@@ -62,24 +62,22 @@ def _positive_float(text):
     return v
 
 
-def _positive_int(text):
-    try:
-        v = int(text)
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"must be a whole number, got {text!r}") from None
-    if v < 1:
-        raise argparse.ArgumentTypeError(f"must be at least 1, got {text!r}")
-    return v
+def _int_at_least(minimum: int):
+    """argparse type: a whole number >= ``minimum``."""
+    def parse(text):
+        try:
+            v = int(text)
+        except ValueError:
+            raise argparse.ArgumentTypeError(f"must be a whole number, got {text!r}") from None
+        if v < minimum:
+            raise argparse.ArgumentTypeError(
+                f"must not be negative, got {text!r}" if minimum == 0 else f"must be at least {minimum}, got {text!r}")
+        return v
+    return parse
 
 
-def _nonneg_int(text):
-    try:
-        v = int(text)
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"must be a whole number, got {text!r}") from None
-    if v < 0:
-        raise argparse.ArgumentTypeError(f"must not be negative, got {text!r}")
-    return v
+_positive_int = _int_at_least(1)
+_nonneg_int = _int_at_least(0)
 
 
 class _Parser(argparse.ArgumentParser):
