@@ -119,7 +119,8 @@ def _natural_key(s: str):
 class SweepItem:
     """One sweep of the input: its ids and coordinates now, its data on :meth:`load`.
 
-    ``sweep_id`` is the safe file-name id; ``label`` the id as given in the input.
+    ``sweep_id`` is the safe file-name id; ``label`` the id as given in the input;
+    ``path`` the file it comes from.
     """
 
     sweep_id: str
@@ -128,6 +129,7 @@ class SweepItem:
     index: int | None = None
     coords: dict = field(default_factory=dict)
     loader: Callable[[], object] | None = None
+    path: str = ""
 
     def load(self):
         """The cleaned :class:`~bayesprobe.sweep.Sweep`; raises InputError for unusable data."""
@@ -575,10 +577,10 @@ def iter_sweeps(inputs, *, voltage_column=None, current_column=None, sweep_colum
                 dup = file_id_for(f"{fid[:48]}.dup-{_sha8(source)}")
                 yield SweepItem(dup, label, source, index, coords, _duplicate(
                     loader, f"sweep id {_show(raw, 60)} from {_show(source, 120)} is already used by "
-                            f"{_show(first_use[key], 120)}; give every sweep its own id"))
+                            f"{_show(first_use[key], 120)}; give every sweep its own id"), str(path))
                 continue
             first_use[key] = source
-            yield SweepItem(fid, label, source, index, coords, _bind_id(loader, fid))
+            yield SweepItem(fid, label, source, index, coords, _bind_id(loader, fid), str(path))
 
 
 def _duplicate(loader, message):
@@ -747,17 +749,35 @@ def _limit_threads():
 
 
 def run_task(task: dict):
-    """Fit one sweep (in a worker). Returns ``(record, posterior netCDF bytes or None)``; never raises."""
+    """Fit one sweep (in a worker). Returns ``(record, posterior netCDF bytes or None)``; never raises.
+
+    A warm-start block (``task["block"]``: consecutive sweeps) is fitted in order, each sweep
+    started from the previous one's result, and gives a list of such pairs.
+    """
     from threadpoolctl import threadpool_limits
     with threadpool_limits(1):
-        return _run_task(task)
+        if "block" not in task:
+            return _run_task(task)[:2]
+        out, prev = [], None
+        for member in task["block"]:
+            if "record" in member:              # could not be read: recorded by the parent already
+                out.append((member["record"], None))
+                continue
+            rec, nc, result = _run_task(member, start=prev)
+            out.append((rec, nc))
+            if result is not None:           # its optimum is a good start even if its sampler did not converge
+                prev = result
+        return out
 
 
-def _run_task(task: dict):
+def _run_task(task: dict, start=None):
     from .fitting import fit
     nc = None
+    result = None
     try:
         extra = {} if task.get("engine", "mcmc") == "mcmc" else {"engine": task["engine"]}
+        if start is not None:
+            extra["start"] = start
         result = fit(task["sweep"], config=task["config"], model=task["model"],
                      credible_level=task["credible_level"], priors=task["priors"], student_nu=task["student_nu"],
                      seed=task["seed"], sampler=task["sampler"], progress=False, **extra)
@@ -779,7 +799,7 @@ def _run_task(task: dict):
         summary, status, reason = None, "failed", "out of memory while fitting this sweep"
     except Exception as exc:  # noqa: BLE001 - one bad sweep must not stop the batch
         summary, status, reason = None, "failed", f"fit failed: {type(exc).__name__}: {_one_line(exc)}"
-    return _record(task["meta"], task["seed"], status, reason, summary), nc
+    return _record(task["meta"], task["seed"], status, reason, summary), nc, result
 
 
 def _record(meta: dict, seed, status: str, reason: str, summary=None) -> dict:
@@ -1001,11 +1021,30 @@ def _cpu_count() -> int:
         return max(1, os.cpu_count() or 1)
 
 
+def _warm_groups(items, block: int):
+    """Units of work: single sweeps, or (``block`` > 1) runs of up to ``block`` consecutive sweeps of
+    one source. The runs are cut from the whole input stream, finished sweeps included, so their
+    boundaries are the same on every rerun and for every number of workers or executor."""
+    if block <= 1:
+        for item in items:
+            yield [item]
+        return
+    group = []
+    for item in items:
+        if group and (len(group) >= block or item.path != group[-1].path):
+            yield group
+            group = []
+        group.append(item)
+    if group:
+        yield group
+
+
 def fit_many(inputs, *, out_dir, config=None, model: str = "maxwellian", credible_level: float = 0.9, seed: int = 0,
              workers: int | None = None, dask=None, sampler=None, priors=None, student_nu=None, sign: str = "auto",
              voltage_column=None, current_column=None, sweep_column=None, sweep_table=None,
              keep_posteriors: bool = False, retry_failed: bool = False, figures: bool = True,
-             progress: bool | None = None, engine: str = "mcmc", _runner=None) -> BatchSummary:
+             progress: bool | None = None, engine: str = "mcmc", warm_start: int = 0,
+             _runner=None) -> BatchSummary:
     """Fit every sweep of the inputs; resumable, one atomic record per sweep, tables at the end.
 
     Parameters
@@ -1039,6 +1078,12 @@ def fit_many(inputs, *, out_dir, config=None, model: str = "maxwellian", credibl
         Progress bar on stderr (default: when stderr is a terminal).
     engine : str
         Posterior engine passed to :func:`bayesprobe.fit` (default ``"mcmc"``).
+    warm_start : int
+        0 (default): every sweep starts cold. N > 1: sweeps are fitted in runs of up to N
+        consecutive sweeps of one input file, in one worker, each started from the previous
+        sweep's result (``fit(start=...)``), for time series and scans that change smoothly.
+        The first sweep of each run starts cold; the runs are fixed by the input order, so
+        results stay the same for any number of workers, executor or resumption.
 
     Returns
     -------
@@ -1075,6 +1120,9 @@ def fit_many(inputs, *, out_dir, config=None, model: str = "maxwellian", credibl
     engines = getattr(_fitting, "ENGINES", ("mcmc",))
     if engine not in engines:
         raise _fail(f"engine must be one of {', '.join(engines)}, got {engine!r}")
+    if isinstance(warm_start, bool) or not isinstance(warm_start, (int, np.integer)) or warm_start < 0:
+        raise _fail(f"warm_start must be a non-negative integer (sweeps per warm-start run), got {warm_start!r}")
+    warm_start = int(warm_start) if warm_start > 1 else 0
     if sign not in ("auto", "electron-positive", "ion-positive"):
         raise _fail(f"sign must be 'auto', 'electron-positive' or 'ion-positive', got {sign!r}")
     if priors is not None and not (isinstance(priors, dict) and all(isinstance(v, dict) for v in priors.values())):
@@ -1097,7 +1145,8 @@ def fit_many(inputs, *, out_dir, config=None, model: str = "maxwellian", credibl
                     "config": config.to_dict(), "priors": priors, "student_nu": student_nu,
                     "sampler": asdict(settings), "sign": sign, "voltage_column": voltage_column,
                     "current_column": current_column, "sweep_column": sweep_column,
-                    "sweep_table_sha256": table_hash, "engine": engine}
+                    "sweep_table_sha256": table_hash, "engine": engine,
+                    **({"warm_start": warm_start} if warm_start else {})}
     out.mkdir(parents=True, exist_ok=True)
     sweeps_dir = out / "sweeps"
     sweeps_dir.mkdir(exist_ok=True)
@@ -1131,8 +1180,39 @@ def fit_many(inputs, *, out_dir, config=None, model: str = "maxwellian", credibl
                 bar.update(1)
                 bar.set_postfix(failed=counts["failed"], not_converged=counts["not-converged"], refresh=False)
 
+        def write_result(task, result):
+            pairs = result if "block" in task else [result]
+            members = task["block"] if "block" in task else [task]
+            for member, (rec, nc) in zip(members, pairs):
+                if member.get("fresh", True) and "record" not in member:
+                    write(rec, nc)
+                    summary.n_fitted_now += 1
+
+        def write_failed(task, reason):
+            for member in task["block"] if "block" in task else [task]:
+                if member.get("fresh", True) and "record" not in member:
+                    write(_record(member["meta"], member["seed"], "failed", reason))
+
+        def _member_task(item):
+            s_seed = sweep_seed(seed, item.sweep_id)
+            meta = {"sweep_id": item.sweep_id, "label": item.label, "source": item.source,
+                    "index": item.index, "coords": {k: _float(v) for k, v in item.coords.items()}}
+            try:
+                sweep = item.load()
+            except InputError as exc:
+                return {"meta": meta, "seed": s_seed, "record": _record(meta, s_seed, "failed", str(exc))}
+            except (OSError, ValueError, EOFError, zipfile.BadZipFile) as exc:
+                return {"meta": meta, "seed": s_seed,
+                        "record": _record(meta, s_seed, "failed", f"{_show(item.source, 120)} could not be read: "
+                                                                  f"{type(exc).__name__}: {_one_line(exc, 200)}")}
+            cfg = table.get(item.label, table.get(item.sweep_id, config))
+            return {"sweep": sweep, "config": cfg, "model": model, "credible_level": float(credible_level),
+                    "priors": priors, "student_nu": student_nu, "seed": s_seed, "sampler": settings,
+                    "keep_posterior": bool(keep_posteriors), "engine": engine, "meta": meta}
+
         items = iter_sweeps(paths, **{k: opts[k] for k in ("voltage_column", "current_column", "sweep_column",
                                                          "sign")})
+        groups = _warm_groups(items, warm_start)
         inflight: dict = {}
         try:
             exhausted = False
@@ -1148,57 +1228,51 @@ def fit_many(inputs, *, out_dir, config=None, model: str = "maxwellian", credibl
                         break
                     if exhausted:
                         break
-                    item = next(items, None)
-                    if item is None:
+                    group = next(groups, None)
+                    if group is None:
                         exhausted = True
                         break
-                    if item.sweep_id in done:
+                    if all(item.sweep_id in done for item in group):
                         continue
-                    done.add(item.sweep_id)
-                    s_seed = sweep_seed(seed, item.sweep_id)
-                    meta = {"sweep_id": item.sweep_id, "label": item.label, "source": item.source,
-                            "index": item.index, "coords": {k: _float(v) for k, v in item.coords.items()}}
-                    try:
-                        sweep = item.load()
-                    except InputError as exc:
-                        write(_record(meta, s_seed, "failed", str(exc)))
-                        continue
-                    except (OSError, ValueError, EOFError, zipfile.BadZipFile) as exc:
-                        write(_record(meta, s_seed, "failed", f"{_show(item.source, 120)} could not be read: "
-                                                               f"{type(exc).__name__}: {_one_line(exc, 200)}"))
-                        continue
-                    cfg = table.get(item.label, table.get(item.sweep_id, config))
-                    task = {"sweep": sweep, "config": cfg, "model": model, "credible_level": float(credible_level),
-                            "priors": priors, "student_nu": student_nu, "seed": s_seed, "sampler": settings,
-                            "keep_posterior": bool(keep_posteriors), "engine": engine, "meta": meta}
-                    inflight[executor.submit(task)] = task
+                    members = []
+                    for item in group:
+                        fresh = item.sweep_id not in done
+                        done.add(item.sweep_id)
+                        member = _member_task(item)
+                        if "record" in member and fresh:
+                            write(member["record"])
+                        member["fresh"] = fresh
+                        members.append(member)
+                    if warm_start:
+                        # a warm-start block is always fitted whole, so its results do not depend on
+                        # which of its sweeps an interrupted run had finished
+                        if any("record" not in m for m in members):
+                            task = {"block": members, "meta": members[0]["meta"], "seed": members[0]["seed"]}
+                            inflight[executor.submit(task)] = task
+                    elif "record" not in members[0]:
+                        inflight[executor.submit(members[0])] = members[0]
                 if not inflight:
                     break
                 broken = False
                 for fut in executor.wait(inflight):
                     task = inflight.pop(fut)
                     try:
-                        rec, nc = fut.result()
-                        summary.n_fitted_now += 1
+                        write_result(task, fut.result())
                     except Exception as exc:  # noqa: BLE001 - infrastructure, not the sweep
                         if executor.is_broken(exc):
                             broken = True
                             if fut is isolated and not getattr(fut, "rejected", False):
-                                write(_record(task["meta"], task["seed"], "failed",
-                                              "the worker process died while fitting this sweep alone (it crashed "
-                                              "or was killed, e.g. for running out of memory)"))
+                                write_failed(task, "the worker process died while fitting this sweep alone (it "
+                                                   "crashed or was killed, e.g. for running out of memory)")
                             else:
                                 suspects.append(task)
                             continue
-                        rec, nc = _record(task["meta"], task["seed"], "failed",
-                                          f"the worker running this sweep failed: {type(exc).__name__}: "
-                                          f"{_one_line(exc, 200)}"), None
-                    write(rec, nc)
+                        write_failed(task, f"the worker running this sweep failed: {type(exc).__name__}: "
+                                           f"{_one_line(exc, 200)}")
                 if broken:              # every other sweep in flight went down with the pool
                     for fut, task in inflight.items():
                         if fut.done() and not fut.cancelled() and fut.exception() is None:
-                            write(*fut.result())
-                            summary.n_fitted_now += 1
+                            write_result(task, fut.result())
                         else:
                             suspects.append(task)
                     inflight.clear()
@@ -1232,11 +1306,11 @@ def _progress_bar(progress, total, initial):
 
 # ============================================================================ tables
 
-_STR_COLS = ("sweep_id", "label", "source", "status", "reason", "model")
+_STR_COLS = ("sweep_id", "label", "source", "status", "reason", "model", "engine")
 _INT_COLS = ("index", "n_points", "n_steps", "n_draws")          # -1: missing
-_FLOAT_COLS = ("credible_level", "r_hat_max", "ess_bulk_min", "tau_max")
+_FLOAT_COLS = ("credible_level", "r_hat_max", "ess_bulk_min", "tau_max", "khat")
 _FIXED = ("sweep_id", "label", "source", "index", "status", "reason", "model", "converged", "credible_level",
-          "seed", "n_points", "r_hat_max", "ess_bulk_min", "tau_max", "n_steps", "n_draws")
+          "seed", "n_points", "engine", "r_hat_max", "ess_bulk_min", "tau_max", "n_steps", "n_draws", "khat")
 _STATS = ("median", "ci_low", "ci_high")
 _TYPECODES = {"d": np.float64, "q": np.int64, "b": np.int8, "Q": np.uint64}
 
@@ -1269,7 +1343,7 @@ class _Columns:
         d = s.get("diagnostics") if isinstance(s.get("diagnostics"), dict) else {}
         sw = s.get("sweep") if isinstance(s.get("sweep"), dict) else {}
         text = {"sweep_id": sid, "label": rec.get("label"), "source": rec.get("source"), "status": rec.get("status"),
-                "reason": rec.get("reason"), "model": s.get("model")}
+                "reason": rec.get("reason"), "model": s.get("model"), "engine": d.get("engine")}
         for k in _STR_COLS:
             v = text[k]
             self.s[k].append(sys.intern(_one_line(v, 1000)) if v is not None else "")
@@ -1387,6 +1461,7 @@ def assemble_results(out_dir, *, figures: bool = True) -> dict:
     for c in coord_names:
         ds_coords[coord_cols[c]] = ("sweep", cols.np(cols.coords[c]))
     data = {"status": strings("status"), "reason": strings("reason"), "model": strings("model"),
+            "engine": strings("engine"),
             "converged": ("sweep", cols.np(cols.converged),
                           {"flag_values": "-1 0 1", "flag_meanings": "not_fitted no yes"})}
     for k in _FLOAT_COLS:

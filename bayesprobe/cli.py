@@ -182,6 +182,9 @@ def build_parser() -> argparse.ArgumentParser:
     b.add_argument("--keep-posteriors", action="store_true",
                    help="also write every sweep's full posterior to OUT/posteriors/<id>.nc")
     b.add_argument("--retry-failed", action="store_true", help="fit sweeps recorded as failed again")
+    b.add_argument("--warm-start", type=_nonneg_int, default=0, metavar="N",
+                   help="time series and scans: fit runs of up to N consecutive sweeps of a file in order, each "
+                        "started from the previous sweep's result (default 0: every sweep starts cold)")
     _add_physics_options(b)
     _add_fit_options(b)
 
@@ -385,7 +388,7 @@ def cmd_batch(args) -> int:
                            sweep_column=args.sweep_column, sweep_table=args.sweep_table,
                            keep_posteriors=args.keep_posteriors, retry_failed=args.retry_failed,
                            figures=not args.no_figures, progress=None if not args.quiet else False,
-                           engine=getattr(args, "engine", "mcmc"))
+                           engine=getattr(args, "engine", "mcmc"), warm_start=args.warm_start)
     except KeyboardInterrupt:
         print(f"interrupted; finished sweeps are kept in {args.out} - rerun the same command to resume",
               file=sys.stderr)

@@ -93,14 +93,34 @@ def _starts(params, cls, V, I, config):
     return np.array(starts)
 
 
+def _warm_start_z(params, start):
+    """The warm start as a point in z, or None when it does not describe this model's parameters."""
+    if start is None:
+        return None
+    values = start.map_estimate if isinstance(start, FitResult) else start
+    if not isinstance(values, dict) or not all(n in values for n in params.names):
+        return None
+    try:
+        z = params.to_z({n: float(values[n]) for n in params.names})
+    except (TypeError, ValueError):
+        return None
+    return z if np.all(np.isfinite(z)) else None
+
+
 def _fit_one(sweep: Sweep, config: ModelConfig, *, credible_level, priors, student_nu, seed, settings,
-             progress, cls, engine="mcmc", is_settings=None) -> FitResult:
+             progress, cls, engine="mcmc", is_settings=None, start=None) -> FitResult:
     V, I = sweep.voltage, sweep.current
     params = default_parameters(config, V, I).with_priors(priors)
     logpost = LogPosterior(V, I, config, params, student_nu=student_nu)
     t0 = time.perf_counter()
     starts = _starts(params, cls, V, I, config)
-    mp = find_map(logpost, starts)
+    z_warm = _warm_start_z(params, start)
+    if z_warm is not None:
+        # the neighbour's optimum joins the candidates; the local search runs from the best one only
+        starts = np.vstack([z_warm[None, :], starts])
+        mp = find_map(logpost, starts, n_local=1)
+    else:
+        mp = find_map(logpost, starts)
     t_map = time.perf_counter() - t0
     ss = np.random.SeedSequence(seed)
     s_sampler, s_ppc, s_is = ss.spawn(3)          # the first two match the MCMC-only seeding
@@ -129,11 +149,13 @@ def _fit_one(sweep: Sweep, config: ModelConfig, *, credible_level, priors, stude
         Zflat = Z.reshape(-1, d)
         lp_flat = run.log_prob[:, ::thin].reshape(-1)
     t_post = time.perf_counter()
-    phys = params.to_physical(Zflat)
-    derived = derived_quantities(phys, config)
-    loglik = logpost.pointwise_loglik(Zflat)
-    rng = np.random.default_rng(s_ppc)
-    ppc = logpost.posterior_predictive(Zflat, rng)
+    # per-draw work once per distinct draw (resampled and rejected-move draws repeat), and one
+    # model evaluation shared by the pointwise log-likelihood and the replicated sweeps
+    Zu, inv = np.unique(Zflat, axis=0, return_inverse=True)
+    inv = inv.reshape(-1)
+    phys_u = params.to_physical(Zu)
+    phys = {n: v[inv] for n, v in phys_u.items()}
+    derived = {n: v[inv] for n, v in derived_quantities(phys_u, config).items()}
     t_post = time.perf_counter() - t_post
 
     def cd(x):  # (E*S'*W,) -> (chain=E, draw=S'*W)
@@ -184,7 +206,7 @@ def _fit_one(sweep: Sweep, config: ModelConfig, *, credible_level, priors, stude
         "criteria": {"tau_multiple_min": settings.min_tau_multiple, "r_hat_max": settings.rhat_max,
                      "ess_bulk_min": settings.ess_min},
         "unmet": reasons, "ess_bulk": ess_all, "r_hat": rhat_all,
-        "map_hessian_ok": bool(mp.hessian_ok), **engine_diag,
+        "map_hessian_ok": bool(mp.hessian_ok), "warm_start": z_warm is not None, **engine_diag,
     }
     if is_run is not None:
         diagnostics.update({"khat": float(is_run.khat), "is_ess": float(is_run.ess), "is_rounds": is_run.n_rounds,
@@ -193,24 +215,32 @@ def _fit_one(sweep: Sweep, config: ModelConfig, *, credible_level, priors, stude
 
     coords = {"point": np.arange(V.size)}
     sample_stats = {"lp": cd(lp_flat)}
-    idata = build_inference_data(
-        posterior=draws,
-        log_likelihood={"current": cd(loglik)},
-        observed_data={"current": I},
-        posterior_predictive={"current": cd(ppc)},
-        sample_stats=sample_stats,
-        constant_data={"voltage": V},
-        coords=coords, dims={"current": ["point"], "voltage": ["point"]},
-        attrs={"bayesprobe_model": config.electrons, "parameter_order": ",".join(params.names),
-               "units": ";".join(f"{k}={v}" for k, v in units.items()),
-               "credible_level": credible_level, "thin_steps": thin},
-    )
+    def build_idata():
+        # the pointwise log-likelihood and the replicated sweeps are only needed for model
+        # comparison, the fit figure and posterior.nc, so they are computed on first use (a batch
+        # that keeps only the summaries never pays for them); the seeded stream makes them the
+        # same whenever that is
+        mu_u = logpost.model_current(Zu)
+        loglik = logpost.pointwise_loglik(Zu, mu=mu_u)[inv]
+        ppc = logpost.posterior_predictive(Zflat, np.random.default_rng(s_ppc), mu=mu_u[inv])
+        return build_inference_data(
+            posterior=draws,
+            log_likelihood={"current": cd(loglik)},
+            observed_data={"current": I},
+            posterior_predictive={"current": cd(ppc)},
+            sample_stats=sample_stats,
+            constant_data={"voltage": V},
+            coords=coords, dims={"current": ["point"], "voltage": ["point"]},
+            attrs={"bayesprobe_model": config.electrons, "parameter_order": ",".join(params.names),
+                   "units": ";".join(f"{k}={v}" for k, v in units.items()),
+                   "credible_level": credible_level, "thin_steps": thin},
+        )
 
     cls_dict = cls.to_dict() if not isinstance(cls, Exception) else {"error": str(cls)}
     map_phys = {n: float(v[0]) for n, v in params.to_physical(mp.z[None]).items()}
     return FitResult(model=config.electrons, config=config, voltage=V, current=I, draws=draws, units=units,
                      parameter_order=params.names, priors=params.describe(), diagnostics=diagnostics,
-                     classical=cls_dict, credible_level=credible_level, idata=idata,
+                     classical=cls_dict, credible_level=credible_level, idata_builder=build_idata,
                      sweep_info={"source": sweep.source, "sweep_id": sweep.sweep_id, "n_points": sweep.n_points,
                                  "notes": list(sweep.notes), "sign_flipped": sweep.sign_flipped},
                      map_estimate=map_phys, student_nu=student_nu, seed=seed,
@@ -221,7 +251,7 @@ def fit(voltage, current=None, *, probe: Probe | None = None, ion="Ar", ion_mass
         ion_collection="auto", model="maxwellian", credible_level=0.9, priors=None, student_nu=None,
         quasi_neutral=False, T_i=0.026, bohm_factor=float(np.exp(-0.5)), seed: int | None = 0,
         sampler: SamplerSettings | None = None, progress=None, sign="auto",
-        config: ModelConfig | None = None, engine: str = "mcmc") -> FitResult:
+        config: ModelConfig | None = None, engine: str = "mcmc", start=None) -> FitResult:
     """Fit the whole characteristic of one sweep and return its posterior.
 
     Parameters
@@ -254,6 +284,12 @@ def fit(voltage, current=None, *, probe: Probe | None = None, ion="Ar", ion_mass
         ``mcmc``: emcee ensembles until converged. ``fast`` (= ``auto``): importance
         sampling from the Laplace approximation, accepted only when the Pareto k-hat
         and the importance-sampling ESS pass; otherwise emcee runs from the same optimum.
+    start : FitResult or dict, optional
+        Warm start from a neighbouring sweep (time series, scans): its MAP (or a dict of
+        every sampled parameter in physical units) joins the starting points and the
+        optimiser runs from the best candidate only. The posterior is the same; only
+        the work to reach it changes (mostly the optimisation, so the fast engine
+        gains most). Ignored when it does not describe the model being fitted.
 
     Returns
     -------
@@ -274,6 +310,18 @@ def fit(voltage, current=None, *, probe: Probe | None = None, ion="Ar", ion_mass
         config = make_config(probe=probe, ion=ion, ion_mass=ion_mass, ion_collection=ion_collection,
                              quasi_neutral=quasi_neutral, T_i=T_i, bohm_factor=bohm_factor)
     settings = sampler or SamplerSettings()
+    # every matrix here is tiny (d x d, or draws x d): multithreaded BLAS only adds thread wake-ups,
+    # which made each L-BFGS-B iteration ~10x slower on a 2-core machine with other load
+    from threadpoolctl import threadpool_limits
+    with threadpool_limits(1, user_api="blas"):
+        return _fit_models(sweep, config, model=model, settings=settings, credible_level=credible_level,
+                           priors=priors, student_nu=student_nu, seed=seed, progress=progress, engine=engine,
+                           start=start)
+
+
+def _fit_models(sweep, config, *, model, settings, credible_level, priors, student_nu, seed, progress, engine,
+                start):
+    """The electron model(s) asked for, and the PSIS-LOO choice between them for ``model="auto"``."""
     cls = _classical(sweep.voltage, sweep.current, config.with_(electrons="maxwellian"))
     kinds = ELECTRON_MODELS if model == "auto" else (model,)
     results = {}
@@ -285,7 +333,7 @@ def fit(voltage, current=None, *, probe: Probe | None = None, ion="Ar", ion_mass
             s = replace(settings, max_steps=AUTO_RICH_MAX_STEPS)
         results[kind] = _fit_one(sweep, config.with_(electrons=kind), credible_level=credible_level,
                                  priors=_priors_for(priors, kind), student_nu=student_nu, seed=seed,
-                                 settings=s, progress=progress, cls=cls, engine=engine)
+                                 settings=s, progress=progress, cls=cls, engine=engine, start=start)
     if len(results) == 1:
         return results[kinds[0]]
     from .comparison import compare_models

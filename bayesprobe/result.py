@@ -58,7 +58,8 @@ class FitResult:
     units : dict name -> unit string
     parameter_order : tuple of the fitted parameter names (sampler order)
     idata : arviz.InferenceData
-        posterior, sample_stats, log_likelihood, observed_data, posterior_predictive.
+        posterior, sample_stats, log_likelihood, observed_data, posterior_predictive; built on
+        first use from ``idata_builder`` when the fit supplied one instead.
     """
 
     model: str
@@ -72,7 +73,7 @@ class FitResult:
     diagnostics: dict
     classical: dict
     credible_level: float = 0.9
-    idata: object = None
+    _idata: object = field(default=None, repr=False)
     sweep_info: dict = field(default_factory=dict)
     map_estimate: dict = field(default_factory=dict)
     comparison: dict | None = None
@@ -80,6 +81,19 @@ class FitResult:
     student_nu: float | None = None
     seed: int | None = None
     settings: dict = field(default_factory=dict)
+    idata_builder: object = field(default=None, repr=False, compare=False)
+
+    @property
+    def idata(self):
+        if self._idata is None and self.idata_builder is not None:
+            self._idata = self.idata_builder()
+            self.idata_builder = None
+        return self._idata
+
+    @idata.setter
+    def idata(self, value):
+        self._idata = value
+        self.idata_builder = None
 
     # ------------------------------------------------------------------ numbers
     @property

@@ -1,10 +1,15 @@
 """Benchmark: batch throughput on 1 vs 2 workers, and parent memory while streaming 10 000 sweeps.
 
 Run on a quiet machine:  python benchmarks/bench_batch.py [--sweeps 8] [--points 200] [--big 10000]
+                             [--engine mcmc|fast|auto] [--warm 40]
 
 1. Throughput: the same simulated sweeps (one multi-sweep .npz) fitted for real by
    ``bayesprobe.batch.fit_many`` on a local process pool of 1 and of 2 workers;
-   prints sweeps/s and the scaling efficiency (rate_2 / (2 rate_1)).
+   prints sweeps/s and the scaling efficiency (rate_2 / (2 rate_1)), and with
+   ``--engine auto`` how many sweeps fell back from importance sampling to emcee.
+1b. Warm start (``--warm K``): a smoothly drifting simulated time series of K sweeps,
+   fitted cold and with ``warm_start=20`` on 2 workers; prints the speed-up and the
+   largest change of a median in posterior sds.
 2. Parent memory: a generated ``--big``-sweep .npz streamed through ``fit_many``
    in a fresh process. FITTING IS REPLACED BY A STUB here (a worker function that
    returns a fixed small record at once), because fitting 10 000 sweeps for real
@@ -57,6 +62,23 @@ def write_multi_npz(path: Path, k: int, n: int, seed: int = 0, chunk: int = 500)
                 fp.write((clean + sd * rng.standard_normal((m, n))).astype(float).tobytes())
 
 
+def write_series_npz(path: Path, k: int, n: int, seed: int = 0):
+    """A k-sweep synthetic time series: T_e, n_e and V_p drift smoothly from sweep to sweep."""
+    V = np.linspace(-45.0, 18.0, n)
+    t = np.arange(k)
+    cur = np.stack([bp.simulate({"T_e": 3.0 + 0.5 * np.sin(j / 9), "n_e": 1e16 * (1 + 0.3 * np.sin(j / 13)),
+                                 "V_p": 12.0 + 0.8 * np.sin(j / 11)}, config=CONFIG, voltage=V, noise_rel=0.01,
+                                seed=seed + j).sweep.current for j in t])
+    np.savez(path, voltage=V, current=cur, time=t * 1e-3)
+
+
+def _engines(out: Path):
+    import csv
+    with open(out / "results.csv", newline="") as f:
+        rows = list(csv.DictReader(f))
+    return rows, sum(r["engine"] == "mcmc" for r in rows)
+
+
 def stub_runner(task):
     """STUB standing in for the fit (memory benchmark only): a fixed small record, no fitting."""
     from bayesprobe.batch import _record
@@ -82,7 +104,7 @@ def throughput(args):
             c0 = resource.getrusage(resource.RUSAGE_CHILDREN)
             t0 = time.perf_counter()
             s = fit_many([src], out_dir=out, config=CONFIG, workers=w, sampler=sampler, progress=False,
-                         figures=False)
+                         figures=False, engine=args.engine)
             wall = time.perf_counter() - t0
             c1 = resource.getrusage(resource.RUSAGE_CHILDREN)
             cpu = (c1.ru_utime - c0.ru_utime) + (c1.ru_stime - c0.ru_stime)
@@ -93,7 +115,35 @@ def throughput(args):
                   f"({s.n_ok} converged, {s.n_not_converged} not, {s.n_failed} failed)")
         print(f"  speed-up 2 vs 1: {rates[2] / rates[1]:.2f}x, scaling efficiency {rates[2] / (2 * rates[1]):.0%}; "
               f"tables identical: {tables[1] == tables[2]}")
+        if args.engine != "mcmc":
+            _, fallbacks = _engines(Path(d) / "out2")
+            print(f"  engine {args.engine}: {fallbacks} of {args.sweeps} sweeps fell back to emcee "
+                  f"({fallbacks / args.sweeps:.0%})")
         print("  (on a busy machine 'cores busy' below the worker count shows the CPU share other jobs took)")
+
+
+def warm(args):
+    from bayesprobe.batch import fit_many
+    with tempfile.TemporaryDirectory() as d:
+        src = Path(d) / "series.npz"
+        write_series_npz(src, args.warm, args.points, seed=7)
+        walls, rows = {}, {}
+        for label, ws in (("cold", 0), ("warm", 20)):
+            out = Path(d) / label
+            t0 = time.perf_counter()
+            fit_many([src], out_dir=out, config=CONFIG, workers=2, progress=False, figures=False,
+                     engine=args.engine, warm_start=ws)
+            walls[label] = time.perf_counter() - t0
+            rows[label], fb = _engines(out)
+            print(f"  {label:4s} (warm_start={ws:2d}): {walls[label]:6.1f} s = {args.warm / walls[label]:.2f} sweeps/s "
+                  f"({fb} fell back to emcee)")
+        worst = 0.0
+        for a, b in zip(rows["cold"], rows["warm"]):
+            for p in ("T_e", "n_e", "V_p"):
+                width = float(a[f"{p}_ci_high"]) - float(a[f"{p}_ci_low"])      # 90 % interval ~ 3.29 sd
+                worst = max(worst, abs(float(a[f"{p}_median"]) - float(b[f"{p}_median"])) / (width / 3.29))
+        print(f"  warm-start speed-up {walls['cold'] / walls['warm']:.2f}x; largest change of a median "
+              f"(T_e, n_e, V_p) {worst:.3f} posterior sd")
 
 
 def memory_child(args):
@@ -144,6 +194,8 @@ def main():
     ap.add_argument("--max-steps", type=int, default=20000)
     ap.add_argument("--big", type=int, default=10000, help="sweeps streamed for the memory part")
     ap.add_argument("--workers", type=int, default=2, help="workers of the memory part")
+    ap.add_argument("--engine", default="mcmc", choices=["mcmc", "fast", "auto"])
+    ap.add_argument("--warm", type=int, default=0, help="sweeps of the warm-start comparison (0: skip)")
     ap.add_argument("--skip-throughput", action="store_true")
     ap.add_argument("--skip-memory", action="store_true")
     ap.add_argument("--child", nargs=2, help=argparse.SUPPRESS)
@@ -155,6 +207,9 @@ def main():
     if not args.skip_throughput:
         print(f"throughput ({args.points}-point planar sweeps, real fits):")
         throughput(args)
+    if args.warm:
+        print(f"warm start ({args.warm}-sweep drifting time series, {args.points} points, engine {args.engine}):")
+        warm(args)
     if not args.skip_memory:
         print(f"parent memory ({args.big}-sweep .npz):")
         memory(args)

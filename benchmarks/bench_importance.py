@@ -1,17 +1,16 @@
-"""Benchmark: MAP + importance sampling against the MCMC driver on a 1000-point single-temperature sweep.
+"""Benchmark: the fast engine (MAP + importance sampling) against emcee on a 1000-point single-T sweep.
 
-Run on a quiet machine:  python benchmarks/bench_importance.py [--repeats 5] [--emcee-repeats 5]
+Run on a quiet machine:  python benchmarks/bench_importance.py [--repeats 7] [--emcee-repeats 3]
 
-For a cylindrical probe ("auto" ion collection) and a planar one ("thin-sheath"), prints
-the median CPU time (time.process_time) over the repeats of
+For a cylindrical probe ("auto" ion collection), a cylindrical probe with OML ions and a
+planar one ("thin-sheath"), prints median CPU seconds (time.process_time) over the repeats
+(different seeds, same sweep) of
 
-* the start (classical analysis + starting points) and ``find_map``,
-* ``importance_sample`` (default settings, and with 2000 first-round proposals),
-* the post-processing every engine needs (derived quantities, pointwise log-likelihood
-  and a replicated sweep for the stored draws),
-
-with k-hat, the importance-sampling ESS and acceptance, and the CPU time of the same
-sweep through ``bayesprobe.fit`` (emcee) for the speed ratio.
+* ``bayesprobe.fit(..., engine="fast")`` end to end (classical start, MAP, importance
+  sampling, derived quantities, pointwise log-likelihood, replicated sweeps, result object),
+* its parts (wall-clock timings the fit records: MAP, importance sampling, post-processing),
+* k-hat, importance-sampling ESS, accepted runs,
+* ``bayesprobe.fit(..., engine="mcmc")`` for the speed ratio.
 """
 import argparse
 import os
@@ -22,76 +21,56 @@ os.environ.setdefault("OMP_NUM_THREADS", "1")
 os.environ.setdefault("OPENBLAS_NUM_THREADS", "1")
 os.environ.setdefault("MKL_NUM_THREADS", "1")
 
-import numpy as np  # noqa: E402
-
 import bayesprobe as bp  # noqa: E402
-from bayesprobe.derived import derived_quantities  # noqa: E402
-from bayesprobe.fitting import _classical, _starts  # noqa: E402
-from bayesprobe.inference.importance import ImportanceSettings, importance_sample  # noqa: E402
-from bayesprobe.inference.optimize import find_map  # noqa: E402
-from bayesprobe.inference.posterior import LogPosterior, default_parameters  # noqa: E402
 
 
-def fast_once(sim, cfg, seed, settings):
-    V, I = sim.sweep.voltage, sim.sweep.current
+def cpu_fit(sim, cfg, seed, engine):
     c0 = time.process_time()
-    cls = _classical(V, I, cfg)
-    params = default_parameters(cfg, V, I)
-    logpost = LogPosterior(V, I, cfg, params)
-    starts = _starts(params, cls, V, I, cfg)
-    mp = find_map(logpost, starts)
-    c1 = time.process_time()
-    run = importance_sample(logpost, mp.z, mp.cov, settings=settings, seed=seed)
-    c2 = time.process_time()
-    phys = params.to_physical(run.draws)
-    derived_quantities(phys, cfg)
-    logpost.pointwise_loglik(run.draws)
-    logpost.posterior_predictive(run.draws, np.random.default_rng(seed))
-    c3 = time.process_time()
-    return {"map": c1 - c0, "is": c2 - c1, "core": c2 - c0, "post": c3 - c2, "khat": run.khat, "ess": run.ess,
-            "accepted": run.accepted, "n_eval": run.n_evaluations, "model": run.timings["model_s"]}
+    res = bp.fit(sim.sweep, config=cfg, seed=seed, progress=False, engine=engine)
+    return time.process_time() - c0, res
 
 
 def main():
     ap = argparse.ArgumentParser()
-    ap.add_argument("--repeats", type=int, default=5)
-    ap.add_argument("--emcee-repeats", type=int, default=5)
+    ap.add_argument("--repeats", type=int, default=7)
+    ap.add_argument("--emcee-repeats", type=int, default=3)
     ap.add_argument("--points", type=int, default=1000)
     args = ap.parse_args()
     cases = {"cylindrical (auto)": bp.ModelConfig(probe=bp.Probe("cylindrical", radius=50e-6, length=5e-3),
                                                   ion="Ar", ion_collection="auto"),
+             "cylindrical (oml)": bp.ModelConfig(probe=bp.Probe("cylindrical", radius=50e-6, length=5e-3),
+                                                 ion="Ar", ion_collection="oml"),
              "planar (thin-sheath)": bp.ModelConfig(probe=bp.Probe("planar", radius=2e-3), ion="Ar",
                                                     ion_collection="thin-sheath")}
-    variants = {"default (4000 proposals)": ImportanceSettings(),
-                "2000 proposals": ImportanceSettings(n_proposals=2000)}
     for label, cfg in cases.items():
         sim = bp.simulate({"n_e": 1e16, "T_e": 3.0, "V_p": 12.0}, config=cfg, n_points=args.points,
                           noise_rel=0.01, seed=1)
-        fast_once(sim, cfg, 0, ImportanceSettings())            # warm caches and imports
-        print(f"\n{args.points}-point {label} sweep, median CPU seconds of {args.repeats} runs")
-        core_default = None
-        for vname, settings in variants.items():
-            rows = [fast_once(sim, cfg, k, settings) for k in range(args.repeats)]
-            med = {k: statistics.median(r[k] for r in rows) for k in ("map", "is", "core", "post", "model", "khat",
-                                                                       "ess", "n_eval")}
-            acc = sum(r["accepted"] for r in rows)
-            if core_default is None:
-                core_default = med["core"] + med["post"]
-            print(f"  fast engine, {vname}: MAP+start {med['map']:.3f}  IS {med['is']:.3f} (model {med['model']:.3f}, "
-                  f"{med['n_eval']:.0f} evaluations)  MAP+IS {med['core']:.3f}  post-processing {med['post']:.3f}")
-            print(f"      k-hat median {med['khat']:.3f} (max {max(r['khat'] for r in rows):.3f}), IS ESS median "
-                  f"{med['ess']:.0f} (min {min(r['ess'] for r in rows):.0f}), accepted {acc}/{len(rows)}")
+        cpu_fit(sim, cfg, 0, "fast")                      # warm caches and imports
+        rows = []
+        for k in range(args.repeats):
+            cpu, res = cpu_fit(sim, cfg, k, "fast")
+            d = res.diagnostics
+            t = d["timings_s"]
+            rows.append({"cpu": cpu, "map": t["map"], "is": t["importance"]["total_s"],
+                         "post": t["posterior_processing"], "khat": d["khat"], "ess": d["is_ess"],
+                         "engine": d["engine"], "n_eval": d["is_n_evaluations"]})
+        med = {k: statistics.median(r[k] for r in rows) for k in ("cpu", "map", "is", "post", "khat", "ess", "n_eval")}
+        acc = sum(r["engine"] == "importance" for r in rows)
+        print(f"\n{args.points}-point {label} sweep, {args.repeats} fast fits")
+        print(f"  fit(engine='fast') CPU median {med['cpu']:.3f} s (min {min(r['cpu'] for r in rows):.3f}); "
+              f"parts (wall): MAP {med['map']:.3f}, IS {med['is']:.3f} ({med['n_eval']:.0f} evaluations), "
+              f"MAP+IS {med['map'] + med['is']:.3f}, post-processing {med['post']:.3f}")
+        print(f"  k-hat median {med['khat']:.3f} (max {max(r['khat'] for r in rows):.3f}); IS ESS median "
+              f"{med['ess']:.0f} (min {min(r['ess'] for r in rows):.0f}); importance result accepted {acc}/{len(rows)}")
         cpu = []
         for k in range(args.emcee_repeats):
-            c0 = time.process_time()
-            res = bp.fit(sim.sweep, config=cfg, seed=k, progress=False)
-            cpu.append(time.process_time() - c0)
+            c, res = cpu_fit(sim, cfg, k, "mcmc")
+            cpu.append(c)
             if not res.converged:
                 print(f"  (emcee run {k} not converged: {res.diagnostics['unmet']})")
         emcee_med = statistics.median(cpu)
-        print(f"  emcee through bayesprobe.fit: CPU median {emcee_med:.2f} s over {len(cpu)} runs; "
-              f"speed ratio (fit / fast MAP+IS+post-processing, default settings) "
-              f"{emcee_med / core_default:.1f}x")
+        print(f"  fit(engine='mcmc') CPU median {emcee_med:.2f} s over {len(cpu)} runs; "
+              f"speed ratio mcmc / fast {emcee_med / med['cpu']:.1f}x")
 
 
 if __name__ == "__main__":

@@ -191,7 +191,7 @@ def test_plot_fit_into_given_axes_and_bad_options(result):
 
 
 def test_plot_fit_without_idata_or_classical(result):
-    r = dataclasses.replace(result, idata=None, classical={"error": "no knee found"})
+    r = dataclasses.replace(result, _idata=None, idata_builder=None, classical={"error": "no knee found"})
     fig = plots.plot_fit(r)
     text = "\n".join(_texts(fig))
     assert "classical analysis failed" in text

@@ -24,12 +24,106 @@ def _clip_inside(logpost, z):
     return np.clip(z, lo + 1e-6 * span, hi - 1e-6 * span)
 
 
-def find_map(logpost, starts, *, maxiter: int = 4000, n_local: int = 2) -> MapResult:
-    """Maximise the log-posterior: Nelder-Mead from the ``n_local`` best of ``starts``,
-    then a Powell polish of the best optimum.
+def _bounds(logpost, d, margin):
+    params = getattr(logpost, "parameters", None)
+    if params is None:
+        return np.full(d, -np.inf), np.full(d, np.inf)
+    lo, hi = np.asarray(params.z_lower, float), np.asarray(params.z_upper, float)
+    return lo + margin, hi - margin
 
-    ``starts`` is an array (m, d) of starting points in z coordinates.
+
+def _value_and_gradient(logpost, z, h):
+    """log-posterior and its central-difference gradient from one vectorised call of 2d+1 rows.
+
+    Where one side of a difference is not finite (a prior bound), the one-sided difference
+    is used; where neither is, that component is 0.
     """
+    d = z.size
+    E = np.diag(h)
+    v = logpost(np.vstack([z[None, :], z + E, z - E]))
+    f0, fp, fm = v[0], v[1:d + 1], v[d + 1:]
+    with np.errstate(invalid="ignore"):
+        g = np.where(np.isfinite(fp) & np.isfinite(fm), (fp - fm) / (2 * h),
+                     np.where(np.isfinite(fp), (fp - f0) / h, np.where(np.isfinite(fm), (f0 - fm) / h, 0.0)))
+    return f0, g
+
+
+def _quasi_newton(logpost, z0, maxiter):
+    """L-BFGS-B on -log p with vectorised central-difference gradients, inside the prior box.
+
+    The coordinates are scaled by the Laplace widths at the start (u = (z - z0) / s), so the
+    optimiser sees a problem of unit scale in every direction; the correlations are left to
+    its curvature memory.
+    """
+    d = z0.size
+    H0, _, n0 = _hessian_and_gradient(logpost, z0)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        s = 1.0 / np.sqrt(np.abs(np.diag(H0)))
+    s = np.where(np.isfinite(s) & (s > 0), s, 0.1)
+    s = np.minimum(s, 1.0)
+    h = 1e-6 * np.maximum(np.abs(z0), 1.0)
+    lo, hi = _bounds(logpost, d, 2 * h)
+    n_eval = [n0]
+
+    def fun(u):
+        n_eval[0] += 2 * d + 1
+        f, g = _value_and_gradient(logpost, z0 + s * u, h)
+        if not np.isfinite(f):
+            return 1e300, np.zeros(d)
+        return -f, -g * s
+
+    ulo, uhi = (lo - z0) / s, (hi - z0) / s
+    bounds = [(None if not np.isfinite(a) else a, None if not np.isfinite(b) else b) for a, b in zip(ulo, uhi)]
+    r = optimize.minimize(fun, np.clip(np.zeros(d), ulo, uhi), jac=True, method="L-BFGS-B", bounds=bounds,
+                          options={"maxiter": maxiter, "ftol": 1e-12, "gtol": 1e-6, "maxcor": 20})
+    return z0 + s * r.x, r.fun, n_eval[0]
+
+
+def _newton_polish(logpost, z, f, *, steps=4):
+    """Newton steps with the finite-difference Hessian, each kept only if it climbs.
+
+    Stops when the predicted gain g^T A^-1 g / 2 (A = -Hessian) is below 1e-7, when a step
+    does not climb, or after ``steps`` steps. Returns the point, its log-posterior, the
+    number of rows evaluated and the Hessian *at that point* (None if the last step moved
+    it), so the Laplace covariance need not be recomputed.
+    """
+    n_eval = 0
+    lo, hi = _bounds(logpost, z.size, 0.0)
+    H_here = None
+    for _ in range(steps):
+        H, g, n = _hessian_and_gradient(logpost, z)
+        n_eval += n
+        H_here = H
+        A = -0.5 * (H + H.T)
+        if not (np.all(np.isfinite(A)) and np.all(np.isfinite(g))):
+            break
+        try:
+            c = np.linalg.cholesky(A)
+        except np.linalg.LinAlgError:
+            break
+        step = np.linalg.solve(c.T, np.linalg.solve(c, g))
+        if 0.5 * float(g @ step) < 1e-7:
+            break
+        z_new = np.clip(z + step, lo, hi)
+        f_new = float(logpost(z_new[None, :])[0])
+        n_eval += 1
+        if not (np.isfinite(f_new) and f_new > f):
+            break
+        z, f, H_here = z_new, f_new, None
+    return z, f, n_eval, H_here
+
+
+def find_map(logpost, starts, *, maxiter: int = 4000, n_local: int = 2, method: str = "quasi-newton") -> MapResult:
+    """Maximise the log-posterior from the ``n_local`` best of ``starts`` (an (m, d) array in z).
+
+    ``method="quasi-newton"`` (default): L-BFGS-B with central-difference gradients, each
+    gradient one vectorised call of 2d+1 rows, inside the prior bounds; then Newton steps
+    with the finite-difference Hessian from the best optimum. ``method="nelder-mead"``: the
+    derivative-free route (Nelder-Mead, then a Powell polish), slower by about 5-10x but
+    indifferent to kinks in the model.
+    """
+    if method not in ("quasi-newton", "nelder-mead"):
+        raise ValueError(f"method must be 'quasi-newton' or 'nelder-mead', got {method!r}")
     starts = np.atleast_2d(starts)
     best = None
     n_eval = 0
@@ -44,26 +138,37 @@ def find_map(logpost, starts, *, maxiter: int = 4000, n_local: int = 2) -> MapRe
     if not order:
         raise RuntimeError("no starting point has a finite posterior density")
     for i in order:
-        r = optimize.minimize(neg, starts[i], method="Nelder-Mead",
-                              options={"maxiter": maxiter, "xatol": 1e-6, "fatol": 1e-6, "adaptive": True})
-        n_eval += r.nfev
-        if best is None or r.fun < best[1]:
-            best = (r.x, r.fun)
-    r2 = optimize.minimize(neg, best[0], method="Powell", options={"maxiter": maxiter, "xtol": 1e-8, "ftol": 1e-10})
-    n_eval += r2.nfev
-    if r2.fun < best[1]:
-        best = (r2.x, r2.fun)
+        if method == "quasi-newton":
+            x, fun, n = _quasi_newton(logpost, starts[i], maxiter)
+        else:
+            r = optimize.minimize(neg, starts[i], method="Nelder-Mead",
+                                  options={"maxiter": maxiter, "xatol": 1e-6, "fatol": 1e-6, "adaptive": True})
+            x, fun, n = r.x, r.fun, r.nfev
+        n_eval += n
+        if best is None or fun < best[1]:
+            best = (x, fun)
+    if method == "quasi-newton":
+        z, f, n, H = _newton_polish(logpost, best[0], -best[1])
+        n_eval += n
+        best = (z, -f)
+    else:
+        H = None
+        r2 = optimize.minimize(neg, best[0], method="Powell",
+                               options={"maxiter": maxiter, "xtol": 1e-8, "ftol": 1e-10})
+        n_eval += r2.nfev
+        if r2.fun < best[1]:
+            best = (r2.x, r2.fun)
     z = best[0]
-    cov, ok = laplace_covariance(logpost, z)
+    cov, ok = laplace_covariance(logpost, z, hessian=H)
     return MapResult(z=z, log_posterior=-best[1], cov=cov, hessian_ok=ok, n_evaluations=n_eval)
 
 
-def laplace_covariance(logpost, z, *, rel_step: float = 1e-4):
-    """Inverse of the negative Hessian of the log-posterior at ``z`` (central differences).
+def _hessian_and_gradient(logpost, z, *, rel_step: float = 1e-4):
+    """Central-difference Hessian and gradient of the log-posterior at ``z``.
 
-    All 2d^2+1 evaluation points are sent to the (vectorised) log-posterior in one
-    call. Returns (cov, ok); when the Hessian is not positive definite the
-    eigenvalues are clipped and ``ok`` is False.
+    All 4 d(d+1)/2 + 1 points go to the vectorised log-posterior in one call; the
+    diagonal stencil (z +- 2h e_i) gives the gradient too. Near a prior bound the
+    stencil is moved a few steps inside it. Returns (H, g, rows evaluated).
     """
     z = np.asarray(z, float)
     d = z.size
@@ -87,12 +192,29 @@ def laplace_covariance(logpost, z, *, rel_step: float = 1e-4):
             pairs.append((i, j))
     vals = logpost(np.array(pts))
     H = np.zeros((d, d))
+    g = np.zeros(d)
     k = 1
     with np.errstate(invalid="ignore"):
         for i, j in pairs:
             fpp, fpm, fmp, fmm = vals[k:k + 4]
             k += 4
             H[i, j] = H[j, i] = (fpp - fpm - fmp + fmm) / (4 * h[i] * h[j])
+            if i == j:
+                g[i] = (fpp - fmm) / (4 * h[i])
+    return H, g, len(pts)
+
+
+def laplace_covariance(logpost, z, *, rel_step: float = 1e-4, hessian=None):
+    """Inverse of the negative Hessian of the log-posterior at ``z`` (central differences).
+
+    All 2d^2+1 evaluation points are sent to the (vectorised) log-posterior in one
+    call (skipped when ``hessian`` at ``z`` is given). Returns (cov, ok); when the
+    Hessian is not positive definite the eigenvalues are clipped and ``ok`` is False.
+    """
+    z = np.asarray(z, float)
+    d = z.size
+    params = getattr(logpost, "parameters", None)
+    H = _hessian_and_gradient(logpost, z, rel_step=rel_step)[0] if hessian is None else np.asarray(hessian, float)
     neg_h = -H
     ok = bool(np.all(np.isfinite(neg_h)))
     if not ok:

@@ -82,11 +82,15 @@ class LogPosterior:
     def _sigma(self, phys, mu):
         return np.sqrt(phys["sigma_floor"][:, None] ** 2 + (phys["sigma_rel"][:, None] * mu) ** 2)
 
-    def pointwise_loglik(self, Z) -> np.ndarray:
-        """Log-likelihood of every point for every row of Z, shape (k, n)."""
+    def pointwise_loglik(self, Z, mu=None) -> np.ndarray:
+        """Log-likelihood of every point for every row of Z, shape (k, n).
+
+        ``mu``: the model current of these rows if already computed (``model_current``).
+        """
         Z = np.atleast_2d(Z)
         phys = self.physical(Z)
-        mu = probe_current(self.voltage, phys, self.config, validate=False)
+        if mu is None:
+            mu = probe_current(self.voltage, phys, self.config, validate=False)
         sigma = self._sigma(phys, mu)
         r = (self.current - mu) / sigma
         if self.student_nu is None:
@@ -114,11 +118,12 @@ class LogPosterior:
             out[ok] = np.where(np.isfinite(ll), ll + lp[ok], -np.inf)
         return out
 
-    def posterior_predictive(self, Z, rng: np.random.Generator) -> np.ndarray:
-        """One replicated sweep per row of Z (same noise model), shape (k, n)."""
+    def posterior_predictive(self, Z, rng: np.random.Generator, mu=None) -> np.ndarray:
+        """One replicated sweep per row of Z (same noise model), shape (k, n); ``mu`` as above."""
         Z = np.atleast_2d(Z)
         phys = self.physical(Z)
-        mu = probe_current(self.voltage, phys, self.config, validate=False)
+        if mu is None:
+            mu = probe_current(self.voltage, phys, self.config, validate=False)
         sigma = self._sigma(phys, mu)
         eps = rng.standard_normal(mu.shape) if self.student_nu is None else rng.standard_t(self.student_nu, mu.shape)
         return mu + sigma * eps
