@@ -340,3 +340,19 @@ def test_cost_is_a_few_thousand_model_rows():
     assert sum(calls) == run.n_evaluations == ImportanceSettings().n_proposals
     assert max(calls) <= ImportanceSettings().chunk_rows
     print(f"{sim.sweep.n_points} points: {cpu:.3f} s CPU for {run.n_evaluations} proposals")
+
+
+def test_fit_falls_back_to_emcee_when_k_hat_flags_the_proposal():
+    """End to end through fit(engine="fast") on the sweep that ends below V_p: the importance
+    result is rejected, emcee runs from the same optimum, and the record says which engine made
+    the result and why (short emcee budget: only the bookkeeping is tested here)."""
+    cfg = bp.ModelConfig(probe=bp.Probe("planar", radius=2e-3), ion="Ar", ion_collection="thin-sheath")
+    res = bp.fit(_beyond_the_knee(cfg).sweep, config=cfg, seed=1, progress=False, engine="fast",
+                 sampler=bp.SamplerSettings(max_steps=600))
+    d = res.diagnostics
+    assert d["engine"] == "mcmc" and d["engine_requested"] == "fast"
+    assert d["khat"] > ImportanceSettings().khat_max
+    assert "k-hat" in d["fallback_reason"]
+    assert d["n_steps"] > 0
+    s = res.summary()["diagnostics"]
+    assert s["engine"] == "mcmc" and "k-hat" in s["fallback_reason"]
