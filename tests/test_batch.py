@@ -453,3 +453,14 @@ def test_warm_start_that_does_not_fit_the_model_is_ignored():
     assert res2.diagnostics["warm_start"] is True
     assert bp.fit(V, I[0], config=CONFIG, model="bi-maxwellian", seed=0, progress=False,
                   engine="fast", sampler=SHORT, start=res).diagnostics["warm_start"] is False
+
+
+def test_warm_start_runs_never_cross_a_file():
+    """Runs are cut at the run length and at every change of input file (a scan in one file and a
+    time series in the next are not one sequence)."""
+    from bayesprobe.batch import SweepItem, _warm_groups
+    items = [SweepItem(f"{f}-{k}", f"{f}-{k}", f"{f} [sweep {k}]", k, path=f) for f, n in (("a", 5), ("b", 2))
+             for k in range(n)]
+    runs = [[i.sweep_id for i in g] for g in _warm_groups(iter(items), 2)]
+    assert runs == [["a-0", "a-1"], ["a-2", "a-3"], ["a-4"], ["b-0", "b-1"]]
+    assert [len(g) for g in _warm_groups(iter(items), 0)] == [1] * 7
