@@ -15,6 +15,23 @@ Parameter names (physical units):
 ``hot_fraction`` 1       hot density / total electron density
 ``V_p``          V       plasma potential
 ===============  ======  ==========================================================
+
+Distortion (nuisance) parameters, present when the matching ``ModelConfig`` switch is on
+(physics and sources in :mod:`bayesprobe.physics.distortions`):
+
+===============  ======  ==========================================================
+``V_rf``         V       amplitude of a sinusoidal plasma-potential oscillation
+                         (``rf_fluctuation``)
+``R_series``     ohm     resistance in series with the probe sheath (``series_resistance``)
+``G_leak``       S       leakage conductance in parallel with the probe (``leakage``)
+``I_offset``     A       constant current offset (``leakage``)
+===============  ======  ==========================================================
+
+The measured current is ``I = f(V - I R_series) + G_leak V + I_offset`` with ``f`` the
+plasma characteristic (its electron part phase-averaged over the RF oscillation).
+:func:`floating_potential` is the floating potential of the undistorted plasma
+characteristic; :func:`measured_floating_potential` is the zero crossing of the full
+distorted model (what the instrument shows).
 """
 from __future__ import annotations
 
@@ -24,14 +41,19 @@ from typing import Mapping
 import numpy as np
 
 from .physics.constants import ion_mass as _ion_mass
+from .physics.distortions import _rf_electron_current, _solve_series
 from .physics.electrons import _electron_current
 from .physics.geometry import Probe
 from .physics.ions import ION_THEORIES, _ion_current, bohm_factor as _bohm_factor
 
 __all__ = ["ModelConfig", "ELECTRON_MODELS", "probe_current", "floating_potential",
-           "plasma_parameter_names", "effective_temperature"]
+           "plasma_parameter_names", "effective_temperature", "distortion_parameter_names",
+           "measured_floating_potential", "DISTORTION_SWITCHES"]
 
 ELECTRON_MODELS = ("maxwellian", "bi-maxwellian")
+#: ModelConfig switch -> the nuisance parameters it adds
+DISTORTION_SWITCHES = {"rf_fluctuation": ("V_rf",), "series_resistance": ("R_series",),
+                       "leakage": ("G_leak", "I_offset")}
 
 
 @dataclass(frozen=True)
@@ -55,6 +77,13 @@ class ModelConfig:
         Planar probes: electron Child-law growth above V_p (default off).
     quasi_neutral : bool
         If True, n_i is tied to n_e; otherwise both are separate parameters.
+    rf_fluctuation : bool
+        Phase-average the electron current over a sinusoidal V_p oscillation of
+        fitted amplitude ``V_rf`` (ions see the mean potential).
+    series_resistance : bool
+        Solve I = f(V - I R_series) for a fitted series resistance.
+    leakage : bool
+        Add a leakage/offset current G_leak V + I_offset.
     """
 
     probe: Probe = field(default_factory=lambda: Probe("cylindrical", radius=50e-6, length=5e-3))
@@ -67,6 +96,18 @@ class ModelConfig:
     electron_sheath_expansion: bool = False
     quasi_neutral: bool = False
     ion_mass_kg: float | None = None
+    rf_fluctuation: bool = False
+    series_resistance: bool = False
+    leakage: bool = False
+
+    @property
+    def distorted(self) -> bool:
+        """True when any instrument/plasma distortion is switched on."""
+        return bool(self.rf_fluctuation or self.series_resistance or self.leakage)
+
+    def undistorted(self) -> "ModelConfig":
+        """The same plasma model with every distortion switched off."""
+        return replace(self, rf_fluctuation=False, series_resistance=False, leakage=False)
 
     def __post_init__(self):
         if not isinstance(self.probe, Probe):
@@ -81,6 +122,9 @@ class ModelConfig:
         if not (np.isfinite(self.T_i) and self.T_i > 0):
             raise ValueError(f"T_i must be a positive temperature in eV, got {self.T_i!r}")
         object.__setattr__(self, "bohm_factor", _bohm_factor(self.bohm_factor))
+        for switch in DISTORTION_SWITCHES:
+            if not isinstance(getattr(self, switch), (bool, np.bool_)):
+                raise ValueError(f"{switch} must be True or False, got {getattr(self, switch)!r}")
         if self.ion_mass_kg is None:
             object.__setattr__(self, "ion_mass_kg", _ion_mass(self.ion))
         elif not (np.isfinite(self.ion_mass_kg) and self.ion_mass_kg > 0):
@@ -98,7 +142,9 @@ class ModelConfig:
                 "T_i_eV": self.T_i, "bohm_factor": self.bohm_factor,
                 "sheath_expansion": self.sheath_expansion,
                 "electron_sheath_expansion": self.electron_sheath_expansion,
-                "quasi_neutral": self.quasi_neutral}
+                "quasi_neutral": self.quasi_neutral,
+                "rf_fluctuation": self.rf_fluctuation, "series_resistance": self.series_resistance,
+                "leakage": self.leakage}
 
     @classmethod
     def from_dict(cls, d: Mapping) -> "ModelConfig":
@@ -106,7 +152,10 @@ class ModelConfig:
                    ion_collection=d["ion_collection"], electrons=d["electrons"], T_i=d["T_i_eV"],
                    bohm_factor=d["bohm_factor"], sheath_expansion=d["sheath_expansion"],
                    electron_sheath_expansion=d.get("electron_sheath_expansion", False),
-                   quasi_neutral=d["quasi_neutral"])
+                   quasi_neutral=d["quasi_neutral"],
+                   rf_fluctuation=bool(d.get("rf_fluctuation", False)),
+                   series_resistance=bool(d.get("series_resistance", False)),
+                   leakage=bool(d.get("leakage", False)))
 
 
 def plasma_parameter_names(config: ModelConfig) -> tuple[str, ...]:
@@ -117,6 +166,11 @@ def plasma_parameter_names(config: ModelConfig) -> tuple[str, ...]:
     names += ["T_e"] if config.electrons == "maxwellian" else ["T_e_cold", "T_e_hot", "hot_fraction"]
     names.append("V_p")
     return tuple(names)
+
+
+def distortion_parameter_names(config: ModelConfig) -> tuple[str, ...]:
+    """Names of the distortion (nuisance) parameters switched on in ``config``."""
+    return tuple(n for switch, names in DISTORTION_SWITCHES.items() if getattr(config, switch) for n in names)
 
 
 def _column(params: Mapping, name: str):
@@ -145,43 +199,85 @@ def _validate(params: Mapping, config: ModelConfig):
                 raise ValueError("hot_fraction must lie in [0, 1]")
         elif np.any(~np.isfinite(v)) or np.any(v <= 0):
             raise ValueError(f"{name} must be positive and finite")
+    for name in distortion_parameter_names(config):
+        if name not in params:
+            raise ValueError(f"missing parameter {name!r} (the {_switch_of(name)} distortion is on)")
+        v = np.asarray(params[name], float)
+        if np.any(~np.isfinite(v)):
+            raise ValueError(f"{name} must be finite")
+        if name in ("V_rf", "R_series") and np.any(v < 0):
+            raise ValueError(f"{name} must not be negative")
 
 
-def probe_current(V, params: Mapping, config: ModelConfig, *, validate: bool = True):
+def _switch_of(name):
+    return next(s for s, names in DISTORTION_SWITCHES.items() if name in names)
+
+
+def probe_current(V, params: Mapping, config: ModelConfig, *, validate: bool = True,
+                  distorted: bool = True):
     """Net probe current I = I_e - I_i (electron current positive), in A.
 
     Parameters
     ----------
     V : array_like, shape (n,)
-        Probe bias in V.
+        Probe bias in V (shape (k, 1) also works: one voltage per parameter set).
     params : mapping of name -> scalar or array of shape (k,)
-        Plasma parameters (see the module docstring); ``n_i`` defaults to ``n_e``.
+        Plasma parameters (see the module docstring); ``n_i`` defaults to ``n_e``;
+        the distortion parameters of every switch that is on in ``config``.
     config : ModelConfig
     validate : bool
         Check parameter values (the sampler turns this off on its hot path; its
         prior already keeps parameters in range).
+    distorted : bool
+        With False, the undistorted plasma characteristic (distortion switches and
+        their parameters ignored).
 
     Returns
     -------
     ndarray
         Shape (n,) for scalar parameters, (k, n) for parameters of shape (k,).
     """
+    if not distorted:
+        config = config.undistorted()
     if validate:
         _validate(params, config)
     V = np.asarray(V, dtype=float)
+    if not config.distorted:
+        return _plasma_current(V, params, config)
+    V_rf = _column(params, "V_rf") if config.rf_fluctuation else None
+
+    def plasma(v):
+        return _plasma_current(v, params, config, V_rf)
+
+    if config.series_resistance:
+        I = _solve_series(plasma, V, _column(params, "R_series"))
+    else:
+        I = plasma(V)
+    if config.leakage:
+        I = I + _column(params, "G_leak") * V + _column(params, "I_offset")
+    return I
+
+
+def _plasma_current(V, params: Mapping, config: ModelConfig, V_rf=None):
     n_e = _column(params, "n_e")
     n_i = _column(params, "n_i") if ("n_i" in params and not config.quasi_neutral) else n_e
     V_p = _column(params, "V_p")
     probe = config.probe
     if config.electrons == "maxwellian":
         T_e = _column(params, "T_e")
-        I_e = _electron_current(V, V_p, n_e, T_e, probe, sheath_expansion=config.electron_sheath_expansion)
+        if V_rf is None:
+            I_e = _electron_current(V, V_p, n_e, T_e, probe, sheath_expansion=config.electron_sheath_expansion)
+        else:
+            I_e = _rf_electron_current(V, V_p, n_e, T_e, V_rf, probe, sheath_expansion=config.electron_sheath_expansion)
         T_s = T_e
     else:
         T_c = _column(params, "T_e_cold")
         T_h = _column(params, "T_e_hot")
         a = _column(params, "hot_fraction")
-        I_e = _electron_current(V, V_p, n_e, T_c, probe, a, T_h, config.electron_sheath_expansion)
+        if V_rf is None:
+            I_e = _electron_current(V, V_p, n_e, T_c, probe, a, T_h, config.electron_sheath_expansion)
+        else:
+            I_e = _rf_electron_current(V, V_p, n_e, T_c, V_rf, probe, a, T_h, config.electron_sheath_expansion)
         T_s = 1.0 / ((1.0 - a) / T_c + a / T_h)        # screening temperature for the Bohm speed
     I_i = _ion_current(V, V_p, n_i, T_s, probe, config.ion_mass_kg, config.ion_collection, n_e, config.T_i,
                        config.bohm_factor, config.sheath_expansion)
@@ -201,8 +297,11 @@ def floating_potential(params: Mapping, config: ModelConfig, *, iterations: int 
 
     Vectorised bisection on [V_p - 80 T_max, V_p]; the net current is negative at
     the lower end (ion saturation) and positive at V_p for any physical plasma.
-    Returns NaN where no sign change exists in that bracket.
+    Returns NaN where no sign change exists in that bracket. Distortions are ignored:
+    this is the floating potential of the plasma characteristic itself (see
+    :func:`measured_floating_potential` for the distorted zero crossing).
     """
+    config = config.undistorted()
     _validate(params, config)
     V_p = np.atleast_1d(np.asarray(params["V_p"], float))
     T_max = effective_temperature(params, config) if config.electrons == "maxwellian" else \
@@ -226,5 +325,38 @@ def floating_potential(params: Mapping, config: ModelConfig, *, iterations: int 
         neg = f_mid < 0
         lo = np.where(neg, mid, lo)
         hi = np.where(neg, hi, mid)
+    out = np.where(ok, 0.5 * (lo + hi), np.nan)
+    return out if np.ndim(params["V_p"]) else out[0]
+
+
+def measured_floating_potential(params: Mapping, config: ModelConfig, *, iterations: int = 60):
+    """Zero crossing (V) of the full, distorted model for every parameter set.
+
+    Vectorised bisection on [V_p - 80 T_max, V_p + 10 T_max], each set evaluated at its
+    own voltage; NaN where the measured current does not change sign in that bracket
+    (e.g. a leakage current larger than the ion saturation current).
+    Equals :func:`floating_potential` when no distortion is on.
+    """
+    if not config.distorted:
+        return floating_potential(params, config, iterations=iterations)
+    _validate(params, config)
+    V_p = np.atleast_1d(np.asarray(params["V_p"], float))
+    T_max = effective_temperature(params, config) if config.electrons == "maxwellian" else \
+        np.asarray(params["T_e_hot"], float)
+    T_max = np.broadcast_to(np.atleast_1d(T_max), V_p.shape)
+    single = {k: np.atleast_1d(np.asarray(v, float)) for k, v in params.items()}
+
+    def current_at(v):
+        return probe_current(v[:, None], single, config, validate=False)[:, 0]
+
+    lo = V_p - 80.0 * T_max
+    hi = V_p + 10.0 * T_max
+    with np.errstate(over="ignore", invalid="ignore"):
+        ok = (current_at(lo) < 0) & (current_at(hi) > 0)
+        for _ in range(iterations):
+            mid = 0.5 * (lo + hi)
+            neg = current_at(mid) < 0
+            lo = np.where(neg, mid, lo)
+            hi = np.where(neg, hi, mid)
     out = np.where(ok, 0.5 * (lo + hi), np.nan)
     return out if np.ndim(params["V_p"]) else out[0]
