@@ -11,7 +11,7 @@ import numpy as np
 
 from .inference.arviz_adapter import compare, loo
 
-__all__ = ["compare_models", "SELECTION_RULE", "ELPD_MIN", "SE_MULTIPLE"]
+__all__ = ["compare_models", "SELECTION_RULE", "ELPD_MIN", "SE_MULTIPLE", "loo_difference", "richer_supported"]
 
 ELPD_MIN = 4.0
 SE_MULTIPLE = 2.0
@@ -19,6 +19,21 @@ SELECTION_RULE = (f"the two-temperature model is selected only if its elpd_loo e
                   f"single-temperature model's by more than {ELPD_MIN:g} and by more than "
                   f"{SE_MULTIPLE:g} standard errors of the difference; otherwise the simpler model is kept")
 ORDER = ("maxwellian", "bi-maxwellian")
+
+
+def loo_difference(simple, rich) -> dict:
+    """PSIS-LOO of two fits of the same sweep and the difference rich - simple with its standard error."""
+    lo_s, lo_r = loo(simple.idata), loo(rich.idata)
+    d = np.asarray(lo_r.loo_i) - np.asarray(lo_s.loo_i)
+    k_hat = np.asarray(lo_r.pareto_k)
+    return {"elpd_loo": float(lo_r.elpd_loo), "se": float(lo_r.se), "elpd_loo_plain": float(lo_s.elpd_loo),
+            "elpd_diff": float(np.sum(d)), "se_diff": float(np.sqrt(d.size * np.var(d))),
+            "pareto_k_max": float(np.max(k_hat)), "n_pareto_k_above_0.7": int(np.sum(k_hat > 0.7))}
+
+
+def richer_supported(diff: float, se_diff: float) -> bool:
+    """The selection rule: the richer model wins only if diff > ELPD_MIN and diff > SE_MULTIPLE * se."""
+    return bool(diff > ELPD_MIN and diff > SE_MULTIPLE * se_diff)
 
 
 def compare_models(results: dict):

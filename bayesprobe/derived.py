@@ -3,14 +3,15 @@ from __future__ import annotations
 
 import numpy as np
 
-from .model import ModelConfig, effective_temperature, floating_potential
+from .model import ModelConfig, effective_temperature, floating_potential, measured_floating_potential
 from .physics.constants import E_CHARGE, EPS0, M_E
 
 __all__ = ["DERIVED_UNITS", "derived_quantities"]
 
 #: name -> (unit, description)
 DERIVED_UNITS = {
-    "V_f": ("V", "floating potential (root of the full model)"),
+    "V_f": ("V", "floating potential (root of the plasma characteristic, without distortions)"),
+    "V_f_measured": ("V", "zero crossing of the distorted model (what the instrument shows)"),
     "Vp_minus_Vf_over_Te": ("1", "(V_p - V_f) / T_e (T_e_eff for two temperatures)"),
     "T_e_eff": ("eV", "effective temperature, two thirds of the mean electron energy"),
     "T_e_screen": ("eV", "screening temperature (harmonic, density-weighted)"),
@@ -40,6 +41,8 @@ def derived_quantities(phys: dict, config: ModelConfig) -> dict:
         out["T_e_screen"] = T_s
     V_f = floating_potential(phys, config)
     out["V_f"] = V_f
+    if config.distorted:
+        out["V_f_measured"] = measured_floating_potential(phys, config)
     out["Vp_minus_Vf_over_Te"] = (phys["V_p"] - V_f) / T_eff
     lam = np.sqrt(EPS0 * T_s / (n_e * E_CHARGE))
     out["debye_length"] = lam

@@ -8,6 +8,8 @@ from dataclasses import asdict, replace
 import numpy as np
 
 from .derived import derived_quantities
+from .distortion_choice import (apply_distortions, describe_distortions, distortion_starts, parse_distortions,
+                                select_distortions)
 from .inference.arviz_adapter import build_inference_data
 from .inference.optimize import find_map
 from .inference.posterior import LogPosterior, default_parameters
@@ -29,7 +31,8 @@ AUTO_RICH_MAX_STEPS = 4000
 
 def make_config(*, probe=None, ion="Ar", ion_mass=None, ion_collection="auto", electrons="maxwellian",
                 quasi_neutral=False, T_i=0.026, bohm_factor=float(np.exp(-0.5)), sheath_expansion=True,
-                electron_sheath_expansion=False) -> ModelConfig:
+                electron_sheath_expansion=False, rf_fluctuation=False, series_resistance=False,
+                leakage=False) -> ModelConfig:
     """Build a :class:`ModelConfig` from plain options (``ion_mass`` in u overrides ``ion``)."""
     if probe is None:
         probe = Probe("cylindrical", radius=50e-6, length=5e-3)
@@ -38,7 +41,8 @@ def make_config(*, probe=None, ion="Ar", ion_mass=None, ion_collection="auto", e
     return ModelConfig(probe=probe, ion=ion if ion_mass is None else float(ion_mass),
                        ion_collection=ion_collection, electrons=electrons, quasi_neutral=quasi_neutral,
                        T_i=T_i, bohm_factor=bohm_factor, sheath_expansion=sheath_expansion,
-                       electron_sheath_expansion=electron_sheath_expansion)
+                       electron_sheath_expansion=electron_sheath_expansion, rf_fluctuation=rf_fluctuation,
+                       series_resistance=series_resistance, leakage=leakage)
 
 
 def _as_sweep(voltage, current, sign):
@@ -89,7 +93,12 @@ def _starts(params, cls, V, I, config):
         T = T0 * fT
         vals = {"n_e": ne0, "n_i": ni0, "T_e": T, "T_e_cold": T, "T_e_hot": 5 * T, "hot_fraction": 0.02,
                 "V_p": Vp0 + dV * T0, "sigma_floor": sig0, "sigma_rel": 0.01}
+        vals.update(distortion_starts(params, T0)[0])
         starts.append(params.to_z({n: vals[n] for n in params.names}))
+    for extra in distortion_starts(params, T0)[1:]:       # the same start with larger distortions
+        starts.append(starts[0].copy())
+        for n, v in extra.items():
+            starts[-1][params.index[n]] = params[n].to_z(v)
     return np.array(starts)
 
 
@@ -110,7 +119,7 @@ def _warm_start_z(params, start):
 def _fit_one(sweep: Sweep, config: ModelConfig, *, credible_level, priors, student_nu, seed, settings,
              progress, cls, engine="mcmc", is_settings=None, start=None) -> FitResult:
     V, I = sweep.voltage, sweep.current
-    params = default_parameters(config, V, I).with_priors(priors)
+    params = default_parameters(config, V, I, fit_nu=student_nu == "fit").with_priors(priors)
     logpost = LogPosterior(V, I, config, params, student_nu=student_nu)
     t0 = time.perf_counter()
     starts = _starts(params, cls, V, I, config)
@@ -156,6 +165,7 @@ def _fit_one(sweep: Sweep, config: ModelConfig, *, credible_level, priors, stude
     phys_u = params.to_physical(Zu)
     phys = {n: v[inv] for n, v in phys_u.items()}
     derived = {n: v[inv] for n, v in derived_quantities(phys_u, config).items()}
+    distortion_record = describe_distortions(logpost, Zflat, phys, V)
     t_post = time.perf_counter() - t_post
 
     def cd(x):  # (E*S'*W,) -> (chain=E, draw=S'*W)
@@ -244,14 +254,15 @@ def _fit_one(sweep: Sweep, config: ModelConfig, *, credible_level, priors, stude
                      sweep_info={"source": sweep.source, "sweep_id": sweep.sweep_id, "n_points": sweep.n_points,
                                  "notes": list(sweep.notes), "sign_flipped": sweep.sign_flipped},
                      map_estimate=map_phys, student_nu=student_nu, seed=seed,
-                     settings=asdict(settings))
+                     settings=asdict(settings), distortions=distortion_record)
 
 
 def fit(voltage, current=None, *, probe: Probe | None = None, ion="Ar", ion_mass=None,
         ion_collection="auto", model="maxwellian", credible_level=0.9, priors=None, student_nu=None,
         quasi_neutral=False, T_i=0.026, bohm_factor=float(np.exp(-0.5)), seed: int | None = 0,
         sampler: SamplerSettings | None = None, progress=None, sign="auto",
-        config: ModelConfig | None = None, engine: str = "mcmc", start=None) -> FitResult:
+        config: ModelConfig | None = None, engine: str = "mcmc", start=None,
+        distortions=None) -> FitResult:
     """Fit the whole characteristic of one sweep and return its posterior.
 
     Parameters
@@ -270,8 +281,9 @@ def fit(voltage, current=None, *, probe: Probe | None = None, ion="Ar", ion_mass
         Probability of the reported equal-tailed intervals.
     priors : dict, optional
         ``{name: {"kind": ..., "lower": ..., "upper": ...}}`` overrides of the defaults.
-    student_nu : float, optional
-        Use a Student-t likelihood with this many degrees of freedom (outliers).
+    student_nu : float or "fit", optional
+        Use a Student-t likelihood with this many degrees of freedom (outliers);
+        ``"fit"`` makes the degrees of freedom a parameter ``nu`` and flags outliers.
     quasi_neutral : bool
         Tie n_i to n_e instead of fitting both.
     seed : int
@@ -290,6 +302,14 @@ def fit(voltage, current=None, *, probe: Probe | None = None, ion="Ar", ion_mass
         optimiser runs from the best candidate only. The posterior is the same; only
         the work to reach it changes (mostly the optimisation, so the fast engine
         gains most). Ignored when it does not describe the model being fitted.
+    distortions : str or iterable of str, optional
+        Distortions to model as nuisance parameters (see :mod:`bayesprobe.physics.distortions`):
+        ``"rf"`` (plasma-potential oscillation, parameter V_rf), ``"resistance"`` (series
+        resistance R_series), ``"leakage"`` (G_leak, I_offset), ``"outliers"`` (Student-t
+        likelihood with fitted nu and an outlier flag list); a list or a comma-separated
+        string. ``"auto"`` fits each against the plain model and keeps those PSIS-LOO
+        supports (rule of :mod:`bayesprobe.comparison`), with a plain-language note in
+        ``summary()["distortions"]``. ``None`` or ``"none"``: as set in ``config``.
 
     Returns
     -------
@@ -299,8 +319,11 @@ def fit(voltage, current=None, *, probe: Probe | None = None, ion="Ar", ion_mass
         raise ValueError(f"credible_level must lie strictly between 0 and 1, got {credible_level!r}")
     if model not in MODEL_CHOICES:
         raise ValueError(f"model must be one of {', '.join(MODEL_CHOICES)}, got {model!r}")
-    if student_nu is not None and not (np.isfinite(student_nu) and student_nu > 0):
-        raise ValueError(f"student_nu must be a positive number, got {student_nu!r}")
+    if student_nu is not None and student_nu != "fit" and not (
+            isinstance(student_nu, (int, float, np.integer, np.floating)) and np.isfinite(student_nu)
+            and student_nu > 0):
+        raise ValueError(f"student_nu must be a positive number or 'fit', got {student_nu!r}")
+    wanted = parse_distortions(distortions)
     if engine not in ENGINES:
         raise ValueError(f"engine must be one of {', '.join(ENGINES)}, got {engine!r}")
     if seed is not None and not isinstance(seed, (int, np.integer)):
@@ -310,6 +333,13 @@ def fit(voltage, current=None, *, probe: Probe | None = None, ion="Ar", ion_mass
         config = make_config(probe=probe, ion=ion, ion_mass=ion_mass, ion_collection=ion_collection,
                              quasi_neutral=quasi_neutral, T_i=T_i, bohm_factor=bohm_factor)
     settings = sampler or SamplerSettings()
+    if wanted == "auto":
+        return select_distortions(
+            lambda cfg, nu: fit(sweep, config=cfg, model=model, credible_level=credible_level, priors=priors,
+                                student_nu=nu, seed=seed, sampler=settings, progress=progress, engine=engine,
+                                start=start),
+            config, student_nu)
+    config, student_nu = apply_distortions(wanted, config, student_nu)
     # every matrix here is tiny (d x d, or draws x d): multithreaded BLAS only adds thread wake-ups,
     # which made each L-BFGS-B iteration ~10x slower on a 2-core machine with other load
     from threadpoolctl import threadpool_limits
@@ -322,7 +352,7 @@ def fit(voltage, current=None, *, probe: Probe | None = None, ion="Ar", ion_mass
 def _fit_models(sweep, config, *, model, settings, credible_level, priors, student_nu, seed, progress, engine,
                 start):
     """The electron model(s) asked for, and the PSIS-LOO choice between them for ``model="auto"``."""
-    cls = _classical(sweep.voltage, sweep.current, config.with_(electrons="maxwellian"))
+    cls = _classical(sweep.voltage, sweep.current, config.undistorted().with_(electrons="maxwellian"))
     kinds = ELECTRON_MODELS if model == "auto" else (model,)
     results = {}
     for kind in kinds:

@@ -81,6 +81,7 @@ class FitResult:
     student_nu: float | None = None
     seed: int | None = None
     settings: dict = field(default_factory=dict)
+    distortions: dict | None = None
     idata_builder: object = field(default=None, repr=False, compare=False)
 
     @property
@@ -140,6 +141,7 @@ class FitResult:
             "priors": self.priors,
             "model_settings": self.config.to_dict(),
             "likelihood": {"kind": "gaussian" if self.student_nu is None else "student-t",
+                           "nu_fitted": self.student_nu == "fit",
                            "student_nu": self.student_nu,
                            "noise_model": "sd^2 = sigma_floor^2 + (sigma_rel * I_model)^2"},
             "map_estimate": self.map_estimate,
@@ -150,6 +152,8 @@ class FitResult:
         }
         if self.comparison is not None:
             s["comparison"] = self.comparison
+        if self.distortions is not None:
+            s["distortions"] = self.distortions
         return _clean(s)
 
     def to_json(self, path=None) -> str:

@@ -3,7 +3,10 @@
 The noise model is a floor plus a part proportional to the local current,
 sigma_i^2 = sigma_floor^2 + (sigma_rel * |I_i|)^2, optionally with a fraction of
 heavy-tailed outliers (Student-t with 2 degrees of freedom, scaled by
-``outlier_scale`` times the local sigma). Everything is reproducible from ``seed``.
+``outlier_scale`` times the local sigma). Distortions switched on in the config
+(RF fluctuation, series resistance, leakage) are simulated with the truth values
+``V_rf``, ``R_series``, ``G_leak``, ``I_offset`` (default 0). Everything is
+reproducible from ``seed``.
 """
 from __future__ import annotations
 
@@ -11,7 +14,8 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from .model import ModelConfig, floating_potential, plasma_parameter_names, probe_current
+from .model import (ModelConfig, distortion_parameter_names, floating_potential, measured_floating_potential,
+                    plasma_parameter_names, probe_current)
 from .physics.geometry import Probe
 from .sweep import Sweep
 
@@ -35,7 +39,8 @@ class SimulatedSweep:
         return {"schema": "bayesprobe.truth/1", "synthetic": True,
                 "parameters": {k: float(v) for k, v in self.truth.items()},
                 "units": {"n_e": "m^-3", "n_i": "m^-3", "T_e": "eV", "T_e_cold": "eV", "T_e_hot": "eV",
-                          "hot_fraction": "1", "V_p": "V", "V_f": "V"},
+                          "hot_fraction": "1", "V_p": "V", "V_f": "V", "V_f_measured": "V", "V_rf": "V",
+                          "R_series": "ohm", "G_leak": "S", "I_offset": "A"},
                 "model": self.config.to_dict(), "noise": self.noise,
                 "n_points": self.sweep.n_points}
 
@@ -73,11 +78,14 @@ def simulate(truth: dict | None = None, *, config: ModelConfig | None = None,
     if config.electrons == "bi-maxwellian":
         params.pop("T_e")
         params.update({"T_e_cold": 2.0, "T_e_hot": 10.0, "hot_fraction": 0.05})
+    for name in distortion_parameter_names(config):
+        params[name] = 0.0
     params.update(truth or {})
-    unknown = set(params) - set(plasma_parameter_names(config)) - {"n_i", "T_e"}
+    expected = plasma_parameter_names(config) + distortion_parameter_names(config)
+    unknown = set(params) - set(expected) - {"n_i", "T_e"}
     if unknown:
         raise ValueError(f"unknown truth parameter(s) {sorted(unknown)} for this model; "
-                         f"expected {', '.join(plasma_parameter_names(config))}")
+                         f"expected {', '.join(expected)}")
     if config.electrons == "bi-maxwellian":
         params.pop("T_e", None)
     if "n_i" not in params or config.quasi_neutral:
@@ -101,7 +109,7 @@ def simulate(truth: dict | None = None, *, config: ModelConfig | None = None,
     voltage = np.sort(np.asarray(voltage, float))
     clean = probe_current(voltage, params, config)
     if noise_floor is None:
-        I_ref = abs(float(probe_current(np.array([params["V_p"]]), params, config)[0]))
+        I_ref = abs(float(probe_current(np.array([params["V_p"]]), params, config, distorted=False)[0]))
         noise_floor = 1e-3 * I_ref
     if not np.isfinite(noise_floor) or noise_floor < 0:
         raise ValueError(f"noise_floor must be a non-negative current in A, got {noise_floor!r}")
@@ -115,6 +123,8 @@ def simulate(truth: dict | None = None, *, config: ModelConfig | None = None,
         noisy[mask] = clean[mask] + outlier_scale * sigma[mask] * rng.standard_t(2, size=n_out)
     truth_out = {k: float(v) for k, v in params.items()}
     truth_out["V_f"] = float(floating_potential(params, config))
+    if config.distorted:
+        truth_out["V_f_measured"] = float(measured_floating_potential(params, config))
     sweep = Sweep(voltage, noisy, sweep_id=sweep_id, source="simulated",
                   notes=["synthetic sweep drawn from the bayesprobe forward model"])
     noise = {"noise_floor_A": float(noise_floor), "noise_rel": float(noise_rel),

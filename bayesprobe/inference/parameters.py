@@ -22,6 +22,9 @@ V_p                uniform        V_min .. V_max + (V_max - V_min)/2 of the swee
 sigma_floor        log-uniform    1e-7 .. 1 times max|I| of the sweep
 sigma_rel          log-uniform    1e-4 .. 1
 =================  =============  ==========================================
+
+Distortion (nuisance) parameters and the fitted Student-t degrees of freedom have their
+defaults and sources in :func:`bayesprobe.inference.posterior.default_parameters`.
 """
 from __future__ import annotations
 
@@ -33,7 +36,7 @@ import numpy as np
 
 __all__ = ["Prior", "Parameter", "ParameterSet", "PRIOR_KINDS", "TRANSFORMS"]
 
-PRIOR_KINDS = ("uniform", "log-uniform", "normal", "log-normal", "beta")
+PRIOR_KINDS = ("uniform", "log-uniform", "normal", "log-normal", "beta", "gamma")
 TRANSFORMS = ("identity", "log", "logit")
 
 
@@ -53,8 +56,9 @@ class Prior:
 
     ``uniform``/``log-uniform`` use ``lower`` and ``upper``; ``normal`` uses
     ``mean`` and ``sd`` (on x); ``log-normal`` uses ``mean`` and ``sd`` of ln x;
-    ``beta`` uses ``a`` and ``b`` (for fractions in (0, 1)). ``lower``/``upper`` also
-    truncate normal priors when given.
+    ``beta`` uses ``a`` and ``b`` (for fractions in (0, 1)); ``gamma`` uses shape ``a``
+    and rate ``b`` (density x^(a-1) e^(-b x), x > 0). ``lower``/``upper`` also
+    truncate normal and gamma priors when given.
     """
 
     kind: str
@@ -73,9 +77,9 @@ class Prior:
                 raise ValueError(f"a {self.kind} prior needs lower < upper, got {self.lower!r}, {self.upper!r}")
             if self.kind == "log-uniform" and self.lower <= 0:
                 raise ValueError("a log-uniform prior needs a positive lower bound")
-        elif self.kind == "beta":
+        elif self.kind in ("beta", "gamma"):
             if self.a is None or self.b is None or not (self.a > 0 and self.b > 0):
-                raise ValueError("a beta prior needs positive a and b")
+                raise ValueError(f"a {self.kind} prior needs positive a and b")
         else:
             if self.mean is None or self.sd is None or not self.sd > 0:
                 raise ValueError(f"a {self.kind} prior needs mean and a positive sd")
@@ -173,6 +177,8 @@ class Parameter:
             elif p.kind == "log-normal":
                 lx = np.log(x)
                 val = -0.5 * ((lx - p.mean) / p.sd) ** 2 - lx + jac
+            elif p.kind == "gamma":
+                val = (p.a - 1) * np.log(x) - p.b * x + jac
             else:  # beta
                 val = (p.a - 1) * np.log(x) + (p.b - 1) * np.log1p(-x) + jac
             return np.where(inside & np.isfinite(val), val, -np.inf)

@@ -3,18 +3,44 @@
 Noise model (fitted, since users rarely know their noise): independent points with
 sd sigma_i = sqrt(sigma_floor^2 + (sigma_rel * mu_i)^2), mu_i the model current.
 The likelihood is Gaussian, or Student-t with ``student_nu`` degrees of freedom
-(scale sigma_i) when outliers are expected. The pointwise log-likelihood is
-available for model comparison (PSIS-LOO).
+(scale sigma_i) when outliers are expected; ``student_nu="fit"`` makes the degrees
+of freedom a parameter ``nu``. The pointwise log-likelihood is available for model
+comparison (PSIS-LOO).
+
+Priors of the distortion (nuisance) parameters, in physical units; ``span`` is the
+voltage range of the sweep and ``I_max`` its largest |I|:
+
+============  =========================  ===============================================
+parameter     prior                      why
+============  =========================  ===============================================
+V_rf          log-uniform 1 mV .. span/2  scale-free over the amplitudes a sweep can show;
+                                          below 1 mV the effect (~(A/T_e)^2/4) is invisible
+R_series      log-uniform 1e-5 .. 1 x     from negligible (I_max R = 1e-5 span) to a
+              span / I_max (ohm)          resistance that eats the whole sweep
+G_leak        normal(0, 0.1 I_max/span)   leakage is small next to the probe current;
+I_offset      normal(0, 0.1 I_max)        either sign (common practice, no source)
+nu            gamma(shape 2, rate 0.1),   Juarez & Steel, J. Bus. Econ. Stat. 28, 52 (2010)
+              truncated to 1 .. 1000      (from memory): mean 20, mode 10, allows heavy tails
+============  =========================  ===============================================
+
+Outliers: under the Student-t model each point has a latent precision weight whose
+posterior mean given the parameters is (nu + 1)/(nu + r^2), r the standardised
+residual (the scale-mixture representation of the t distribution; e.g. Lange, Little
+& Taylor, JASA 84, 881 (1989)). :meth:`LogPosterior.outlier_weights` returns it per
+draw and point.
 """
 from __future__ import annotations
 
 import numpy as np
 from scipy.special import gammaln
 
-from ..model import ModelConfig, plasma_parameter_names, probe_current
+from ..model import ModelConfig, distortion_parameter_names, plasma_parameter_names, probe_current
 from .parameters import Parameter, ParameterSet, Prior
 
-__all__ = ["default_parameters", "LogPosterior", "MIN_HOT_RATIO"]
+__all__ = ["default_parameters", "LogPosterior", "MIN_HOT_RATIO", "NU_PRIOR"]
+
+#: prior of the fitted Student-t degrees of freedom (Juarez & Steel 2010), truncated to [1, 1000]
+NU_PRIOR = Prior("gamma", lower=1.0, upper=1000.0, a=2.0, b=0.1)
 
 #: the hot group must be at least this much hotter than the cold group (ordering, no label switching)
 MIN_HOT_RATIO = 1.5
@@ -28,13 +54,22 @@ _LABELS = {"n_e": (r"$n_e$", "m^-3", "electron density"),
            "hot_fraction": (r"$\alpha_h$", "1", "hot electron density / total"),
            "V_p": (r"$V_p$", "V", "plasma potential"),
            "sigma_floor": (r"$\sigma_0$", "A", "noise floor (sd)"),
-           "sigma_rel": (r"$\sigma_r$", "1", "noise proportional to |I| (sd / |I|)")}
+           "sigma_rel": (r"$\sigma_r$", "1", "noise proportional to |I| (sd / |I|)"),
+           "V_rf": (r"$V_{rf}$", "V", "amplitude of the plasma-potential oscillation"),
+           "R_series": (r"$R_s$", "ohm", "series (circuit) resistance"),
+           "G_leak": (r"$G_{leak}$", "S", "leakage conductance"),
+           "I_offset": (r"$I_0$", "A", "offset current"),
+           "nu": (r"$\nu$", "1", "Student-t degrees of freedom (fitted)")}
 
 
-def default_parameters(config: ModelConfig, voltage, current) -> ParameterSet:
-    """The fitted parameters and their default priors for ``config`` and this sweep."""
+def default_parameters(config: ModelConfig, voltage, current, *, fit_nu: bool = False) -> ParameterSet:
+    """The fitted parameters and their default priors for ``config`` and this sweep.
+
+    ``fit_nu`` adds the Student-t degrees of freedom ``nu`` (see the module docstring).
+    """
     v_min, v_max = float(np.min(voltage)), float(np.max(voltage))
     i_max = float(np.max(np.abs(current)))
+    span = max(v_max - v_min, 1e-6)
     defaults = {
         "n_e": Prior("log-uniform", 1e12, 1e21), "n_i": Prior("log-uniform", 1e12, 1e21),
         "T_e": Prior("log-uniform", 0.1, 100.0), "T_e_cold": Prior("log-uniform", 0.1, 100.0),
@@ -42,12 +77,18 @@ def default_parameters(config: ModelConfig, voltage, current) -> ParameterSet:
         "V_p": Prior("uniform", v_min, v_max + 0.5 * (v_max - v_min)),
         "sigma_floor": Prior("log-uniform", 1e-7 * i_max, i_max),
         "sigma_rel": Prior("log-uniform", 1e-4, 1.0),
+        "V_rf": Prior("log-uniform", 1e-3, max(0.5 * span, 2e-3)),
+        "R_series": Prior("log-uniform", 1e-5 * span / i_max, span / i_max),
+        "G_leak": Prior("normal", mean=0.0, sd=0.1 * i_max / span),
+        "I_offset": Prior("normal", mean=0.0, sd=0.1 * i_max),
+        "nu": NU_PRIOR,
     }
-    names = list(plasma_parameter_names(config)) + ["sigma_floor", "sigma_rel"]
+    names = list(plasma_parameter_names(config)) + list(distortion_parameter_names(config)) \
+        + ["sigma_floor", "sigma_rel"] + (["nu"] if fit_nu else [])
     out = []
     for n in names:
         label, unit, desc = _LABELS[n]
-        transform = "identity" if n == "V_p" else ("logit" if n == "hot_fraction" else "log")
+        transform = "identity" if n in ("V_p", "G_leak", "I_offset") else ("logit" if n == "hot_fraction" else "log")
         out.append(Parameter(n, unit, label, defaults[n], transform=transform, description=desc))
     return ParameterSet(out)
 
@@ -68,7 +109,13 @@ class LogPosterior:
         self.student_nu = student_nu
         self.n_points = self.voltage.size
         self._has_order = "T_e_hot" in parameters.names
-        if student_nu is not None:
+        self.fit_nu = isinstance(student_nu, str)
+        if self.fit_nu:
+            if student_nu != "fit":
+                raise ValueError(f"student_nu must be a positive number or 'fit', got {student_nu!r}")
+            if "nu" not in parameters.names:
+                raise ValueError("student_nu='fit' needs a parameter 'nu' (default_parameters(..., fit_nu=True))")
+        elif student_nu is not None:
             nu = float(student_nu)
             self._t_const = gammaln((nu + 1) / 2) - gammaln(nu / 2) - 0.5 * np.log(nu * np.pi)
 
@@ -95,8 +142,27 @@ class LogPosterior:
         r = (self.current - mu) / sigma
         if self.student_nu is None:
             return -0.5 * r * r - np.log(sigma) - 0.5 * np.log(2 * np.pi)
+        if self.fit_nu:
+            nu = phys["nu"][:, None]
+            const = gammaln((nu + 1) / 2) - gammaln(nu / 2) - 0.5 * np.log(nu * np.pi)
+            return const - np.log(sigma) - 0.5 * (nu + 1) * np.log1p(r * r / nu)
         nu = self.student_nu
         return self._t_const - np.log(sigma) - 0.5 * (nu + 1) * np.log1p(r * r / nu)
+
+    def outlier_weights(self, Z) -> np.ndarray:
+        """Posterior mean precision weight (nu + 1)/(nu + r^2) of every point for every row of Z.
+
+        About 1 for a point the noise model explains; small for a point the data treat as
+        an outlier. All ones under the Gaussian likelihood.
+        """
+        Z = np.atleast_2d(Z)
+        phys = self.physical(Z)
+        mu = probe_current(self.voltage, phys, self.config, validate=False)
+        r = (self.current - mu) / self._sigma(phys, mu)
+        if self.student_nu is None:
+            return np.ones_like(r)
+        nu = phys["nu"][:, None] if self.fit_nu else self.student_nu
+        return (nu + 1.0) / (nu + r * r)
 
     def log_prior(self, Z) -> np.ndarray:
         Z = np.atleast_2d(Z)
@@ -125,5 +191,10 @@ class LogPosterior:
         if mu is None:
             mu = probe_current(self.voltage, phys, self.config, validate=False)
         sigma = self._sigma(phys, mu)
-        eps = rng.standard_normal(mu.shape) if self.student_nu is None else rng.standard_t(self.student_nu, mu.shape)
+        if self.student_nu is None:
+            eps = rng.standard_normal(mu.shape)
+        elif self.fit_nu:
+            eps = rng.standard_t(np.broadcast_to(phys["nu"][:, None], mu.shape))
+        else:
+            eps = rng.standard_t(self.student_nu, mu.shape)
         return mu + sigma * eps

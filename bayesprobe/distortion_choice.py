@@ -1,0 +1,223 @@
+"""Which sweep distortions to model: names, switches, starting values, outlier flags, ``auto``.
+
+The distortions themselves (physics and sources) are in
+:mod:`bayesprobe.physics.distortions`; their priors in
+:mod:`bayesprobe.inference.posterior`. This module is the glue ``fit`` uses:
+
+* :func:`parse_distortions` turns the user's choice (``"rf,leakage"``, a list,
+  ``"auto"``) into names;
+* :func:`apply_distortions` switches them on in a :class:`~bayesprobe.model.ModelConfig`
+  (``outliers`` is a likelihood choice: Student-t with fitted degrees of freedom);
+* :func:`describe_distortions` is the ``distortions`` block of ``summary.json``
+  (which are on, and the outlier flag list);
+* :func:`select_distortions` is ``auto``: every distortion is fitted alone and
+  compared with the plain model by PSIS-LOO with the rule of
+  :mod:`bayesprobe.comparison` (difference > 4 and > 2 standard errors); the
+  supported ones are switched on together, and a plain-language note says which
+  were found and how far they moved T_e and n from the undistorted fit.
+"""
+from __future__ import annotations
+
+import numpy as np
+
+from .comparison import ELPD_MIN, SE_MULTIPLE, loo_difference, richer_supported
+from .model import DISTORTION_SWITCHES, distortion_parameter_names
+
+__all__ = ["DISTORTIONS", "parse_distortions", "apply_distortions", "enabled_distortions",
+           "describe_distortions", "select_distortions", "OUTLIER_WEIGHT"]
+
+#: user-facing distortion name -> ModelConfig switch (``outliers`` is a likelihood choice)
+DISTORTIONS = {"rf": "rf_fluctuation", "resistance": "series_resistance", "leakage": "leakage",
+               "outliers": None}
+_DESCRIPTION = {"rf": "RF fluctuation of the plasma potential", "resistance": "series (circuit) resistance",
+                "leakage": "leakage / offset current", "outliers": "outliers (heavy-tailed noise)"}
+_MAIN_PARAMETER = {"rf": "V_rf", "resistance": "R_series", "leakage": "G_leak", "outliers": "nu"}
+#: a point is flagged as an outlier when its posterior mean weight (nu + 1)/(nu + r^2) is below this
+#: (the data give it less than a quarter of the weight of a typical point; common practice, no source)
+OUTLIER_WEIGHT = 0.25
+
+
+def parse_distortions(value):
+    """``None``/"none" -> (); "auto" -> "auto"; "rf,leakage" or a list -> tuple of names."""
+    if value is None:
+        return ()
+    if isinstance(value, str):
+        text = value.strip().lower()
+        if text in ("", "none"):
+            return ()
+        if text == "auto":
+            return "auto"
+        items = [t.strip() for t in text.split(",") if t.strip()]
+    else:
+        try:
+            items = [str(t).strip().lower() for t in value]
+        except TypeError:
+            raise ValueError(f"distortions must be a name, a comma-separated list or 'auto', got {value!r}") from None
+    unknown = [t for t in items if t not in DISTORTIONS]
+    if unknown or "auto" in items:
+        raise ValueError(f"unknown distortion(s) {', '.join(repr(t) for t in unknown) or repr('auto')}; "
+                         f"use any of {', '.join(DISTORTIONS)}, or 'auto' alone, or 'none'")
+    return tuple(n for n in DISTORTIONS if n in items)
+
+
+def apply_distortions(names, config, student_nu):
+    """Switch ``names`` on in ``config``; ``outliers`` sets ``student_nu = "fit"``."""
+    changes = {DISTORTIONS[n]: True for n in names if DISTORTIONS[n]}
+    if "outliers" in names:
+        if student_nu not in (None, "fit"):
+            raise ValueError(f"the outliers distortion fits the Student-t degrees of freedom; "
+                             f"drop the fixed student_nu={student_nu!r} or the outliers distortion")
+        student_nu = "fit"
+    return (config.with_(**changes) if changes else config), student_nu
+
+
+def enabled_distortions(config, student_nu) -> list:
+    out = [n for n, switch in DISTORTIONS.items() if switch and getattr(config, switch)]
+    if student_nu == "fit":
+        out.append("outliers")
+    return out
+
+
+def distortion_starts(params, T0: float) -> list:
+    """Starting values of the distortion parameters present in ``params``: a base start and
+    extra starts with larger distortions (so the optimiser sees both sides)."""
+    base, extras = {}, []
+    names = set(params.names)
+    if "V_rf" in names:
+        base["V_rf"] = _inside(params["V_rf"], 0.05 * T0)
+        extras.append({"V_rf": _inside(params["V_rf"], 1.0 * T0)})
+    if "R_series" in names:
+        hi = params["R_series"].prior.upper or 1.0
+        base["R_series"] = _inside(params["R_series"], 1e-3 * hi)
+        extras.append({"R_series": _inside(params["R_series"], 0.05 * hi)})
+    if "G_leak" in names:
+        base.update({"G_leak": 0.0, "I_offset": 0.0})
+    if "nu" in names:
+        base["nu"] = 10.0
+        extras.append({"nu": 3.0})
+    return [base] + extras
+
+
+def _inside(param, value):
+    lo, hi = param.prior.lower, param.prior.upper
+    if lo is not None and hi is not None:
+        return float(np.exp(np.clip(np.log(value), np.log(lo) + 0.01, np.log(hi) - 0.01))) if lo > 0 \
+            else float(np.clip(value, lo, hi))
+    return float(value)
+
+
+def describe_distortions(logpost, Z, phys, voltage) -> dict | None:
+    """The ``distortions`` block of the summary for one fit (None when nothing is modelled)."""
+    config = logpost.config
+    nu_mode = "fit" if getattr(logpost, "fit_nu", False) else logpost.student_nu
+    enabled = enabled_distortions(config, nu_mode)
+    if not enabled:
+        return None
+    rec = {"enabled": enabled,
+           "descriptions": {n: _DESCRIPTION[n] for n in enabled},
+           "parameters": list(distortion_parameter_names(config)) + (["nu"] if nu_mode == "fit" else []),
+           "note": ""}
+    if nu_mode == "fit":
+        w = np.zeros(np.asarray(voltage).size)
+        for start in range(0, Z.shape[0], 500):          # chunks keep memory flat on long sweeps
+            with np.errstate(over="ignore", invalid="ignore"):
+                w += logpost.outlier_weights(Z[start:start + 500]).sum(axis=0)
+        w /= Z.shape[0]
+        flagged = np.flatnonzero(w < OUTLIER_WEIGHT)
+        rec["outliers"] = {
+            "rule": f"posterior mean precision weight (nu + 1)/(nu + r^2) below {OUTLIER_WEIGHT:g}",
+            "weight_threshold": OUTLIER_WEIGHT, "n_flagged": int(flagged.size),
+            "indices": flagged.tolist(), "voltage_V": np.asarray(voltage)[flagged].tolist(),
+            "mean_weight": w[flagged].tolist(), "nu_median": float(np.median(phys["nu"]))}
+        rec["note"] = (f"{flagged.size} point(s) flagged as outliers (Student-t, fitted nu = "
+                       f"{np.median(phys['nu']):.3g}).")
+    return rec
+
+
+def _temperature_name(result):
+    return "T_e" if "T_e" in result.draws else "T_e_eff"
+
+
+def _shift(plain, chosen, name):
+    a, b = plain.parameter_summary().get(name), chosen.parameter_summary().get(name)
+    if not a or not b or a["median"] is None or b["median"] is None:
+        return None
+    d = b["median"] - a["median"]
+    return {"unit": a["unit"], "plain_median": a["median"], "median": b["median"], "shift": d,
+            "shift_relative": d / a["median"] if a["median"] else None,
+            "shift_in_plain_sd": d / a["sd"] if a["sd"] else None}
+
+
+def select_distortions(fit_fn, config, student_nu):
+    """``auto``: fit the plain model and each distortion alone, keep those PSIS-LOO supports.
+
+    ``fit_fn(config, student_nu)`` runs one fit. Returns the chosen FitResult with
+    ``distortions["selection"]`` filled in (candidates, the rule, shifts of T_e and n
+    relative to the plain fit, and a plain-language note).
+    """
+    base = config.undistorted()
+    base_nu = None if student_nu == "fit" else student_nu
+    plain = fit_fn(base, base_nu)
+    candidates, results = {}, {}
+    for name in DISTORTIONS:
+        if name == "outliers" and base_nu is not None:
+            continue                                 # a fixed Student-t likelihood was asked for
+        cfg, nu = apply_distortions((name,), base, base_nu)
+        res = fit_fn(cfg, nu)
+        results[name] = res
+        cmp = loo_difference(plain, res)
+        cmp["supported"] = richer_supported(cmp["elpd_diff"], cmp["se_diff"])
+        cmp["converged"] = bool(res.converged)
+        candidates[name] = cmp
+    found = [n for n in candidates if candidates[n]["supported"]]
+    if not found:
+        chosen = plain
+    elif len(found) == 1:
+        chosen = results[found[0]]
+    else:
+        cfg, nu = apply_distortions(tuple(found), base, base_nu)
+        chosen = fit_fn(cfg, nu)
+    T = _temperature_name(plain)
+    shifts = {n: s for n in (T, "n_e", "n_i") if (s := _shift(plain, chosen, n)) is not None}
+    selection = {"method": "PSIS-LOO, each distortion fitted alone against the undistorted model",
+                 "rule": (f"a distortion is kept only if its elpd_loo exceeds the undistorted model's by more "
+                          f"than {ELPD_MIN:g} and by more than {SE_MULTIPLE:g} standard errors of the difference"),
+                 "candidates": candidates, "found": found, "shifts_vs_undistorted": shifts,
+                 "note": _note(found, chosen, shifts, T)}
+    rec = chosen.distortions or {"enabled": [], "descriptions": {}, "parameters": [], "note": ""}
+    rec = dict(rec)
+    rec["selection"] = selection
+    rec["note"] = selection["note"] + (" " + rec["note"] if rec.get("note") else "")
+    chosen.distortions = rec
+    return chosen
+
+
+def _fmt(v, unit):
+    return f"{v:.3g} {unit}".strip()
+
+
+def _note(found, chosen, shifts, T):
+    if not found:
+        return ("No distortion is supported by these data: each modelled distortion (RF fluctuation, series "
+                "resistance, leakage, outliers) failed to improve the leave-one-out predictive density enough, "
+                "so the undistorted model is kept.")
+    ps = chosen.parameter_summary()
+    parts = []
+    for n in found:
+        p = _MAIN_PARAMETER[n]
+        e = ps.get(p)
+        detail = f" ({p} = {_fmt(e['median'], e['unit'])})" if e and e["median"] is not None else ""
+        parts.append(_DESCRIPTION[n] + detail)
+    text = "Distortions found and modelled: " + "; ".join(parts) + "."
+    moves = []
+    for name in (T, "n_e", "n_i"):
+        s = shifts.get(name)
+        if s is None:
+            continue
+        rel = f"{100 * s['shift_relative']:+.0f} %" if s["shift_relative"] is not None else ""
+        sd = f", {s['shift_in_plain_sd']:+.1f} sd of the undistorted fit" if s["shift_in_plain_sd"] is not None else ""
+        moves.append(f"{name} from {_fmt(s['plain_median'], s['unit'])} to {_fmt(s['median'], s['unit'])} "
+                     f"({rel}{sd})")
+    if moves:
+        text += " Relative to the undistorted model they moved " + "; ".join(moves) + "."
+    return text
