@@ -76,6 +76,20 @@ def _int_at_least(minimum: int):
     return parse
 
 
+def _nu_choice(text):
+    if text.strip().lower() == "fit":
+        return "fit"
+    return _positive_float(text)
+
+
+def _distortion_choice(text):
+    from .distortion_choice import parse_distortions
+    try:
+        return parse_distortions(text)
+    except ValueError as exc:
+        raise argparse.ArgumentTypeError(str(exc)) from None
+
+
 _positive_int = _int_at_least(1)
 _nonneg_int = _int_at_least(0)
 
@@ -122,8 +136,16 @@ def _add_fit_options(p):
     g.add_argument("--seed", type=_nonneg_int, default=0, help="random seed; same seed, same result (default 0)")
     g.add_argument("--priors", type=Path, metavar="TOML",
                    help="TOML file with [prior.NAME] tables (kind, lower, upper, mean, sd)")
-    g.add_argument("--student-t", type=_positive_float, metavar="NU",
-                   help="Student-t likelihood with NU degrees of freedom (robust to outliers)")
+    g.add_argument("--student-t", type=_nu_choice, metavar="NU|fit",
+                   help="Student-t likelihood with NU degrees of freedom (robust to outliers); 'fit' makes "
+                        "NU a parameter and flags outliers (same as --distortions outliers)")
+    g.add_argument("--distortions", type=_distortion_choice, default=None, metavar="LIST|auto|none",
+                   help="model sweep distortions as nuisance parameters instead of trimming the sweep: a "
+                        "comma-separated list of rf (plasma-potential oscillation, fits V_rf), resistance "
+                        "(series resistance, fits R_series), leakage (linear leakage and offset current, fits "
+                        "G_leak and I_offset), outliers (Student-t noise with fitted nu, flags outlier points); "
+                        "auto fits each against the plain model and keeps those PSIS-LOO supports, with a note "
+                        "in summary.json; none (default) models none")
     g.add_argument("--engine", choices=["mcmc", "fast", "auto"], default="mcmc",
                    help="mcmc: emcee until converged (default); fast/auto: importance sampling from the "
                         "Laplace approximation, checked by Pareto k-hat, with emcee as the fallback")
@@ -211,6 +233,14 @@ def build_parser() -> argparse.ArgumentParser:
     s.add_argument("--noise-rel", type=float, default=0.01, help="noise sd as a fraction of |I| (default 0.01)")
     s.add_argument("--noise-floor", type=float, help="constant noise sd in A (default 1e-3 of I at V_p)")
     s.add_argument("--outliers", type=float, default=0.0, help="fraction of heavy-tailed outlier points")
+    s.add_argument("--rf-amplitude", type=float, default=0.0, metavar="V",
+                   help="amplitude of a sinusoidal plasma-potential oscillation in V (default 0: none)")
+    s.add_argument("--series-resistance", type=float, default=0.0, metavar="OHM",
+                   help="resistance in series with the probe in ohm (default 0: none)")
+    s.add_argument("--leak-conductance", type=float, default=0.0, metavar="S",
+                   help="leakage conductance in parallel with the probe in S (default 0)")
+    s.add_argument("--current-offset", type=float, default=0.0, metavar="A",
+                   help="constant current offset in A (default 0)")
     s.add_argument("--seed", type=_nonneg_int, default=0)
     return p
 
@@ -291,7 +321,8 @@ def cmd_fit(args) -> int:
     try:
         result = fitting.fit(sweep, config=config, model=args.model, credible_level=args.credible_level,
                              priors=priors, student_nu=args.student_t, seed=args.seed, sampler=settings,
-                             progress=None if not args.quiet else False, engine=args.engine)
+                             progress=None if not args.quiet else False, engine=args.engine,
+                             distortions=args.distortions)
     except ValueError as exc:          # bad prior values and the like: one line
         raise InputError(" ".join(str(exc).split())) from None
     write_fit_outputs(result, args.out, figures=not args.no_figures)
@@ -299,6 +330,8 @@ def cmd_fit(args) -> int:
         print(result.table())
         if result.comparison:
             print(result.comparison["reasoning"])
+        if result.distortions and result.distortions.get("note"):
+            print(result.distortions["note"])
         print(f"results written to {args.out}")
     if not result.converged:
         print("warning: the sampler did not converge within the step budget "
@@ -337,7 +370,20 @@ def cmd_simulate(args) -> int:
     from .io import atomic_write_text, write_sweep_csv
     from .simulate import simulate
     config = _config_from(args, electrons=args.model)
+    extra = {"V_rf": args.rf_amplitude, "R_series": args.series_resistance, "G_leak": args.leak_conductance,
+             "I_offset": args.current_offset}
+    for name, flag in (("V_rf", "--rf-amplitude"), ("R_series", "--series-resistance")):
+        if not (math.isfinite(extra[name]) and extra[name] >= 0):
+            raise InputError(f"{flag} must be a non-negative number, got {extra[name]!r}")
+    for name, flag in (("G_leak", "--leak-conductance"), ("I_offset", "--current-offset")):
+        if not math.isfinite(extra[name]):
+            raise InputError(f"{flag} must be a finite number, got {extra[name]!r}")
+    config = config.with_(rf_fluctuation=extra["V_rf"] > 0, series_resistance=extra["R_series"] > 0,
+                          leakage=extra["G_leak"] != 0 or extra["I_offset"] != 0)
     truth = {"n_e": args.n_e, "V_p": args.V_p}
+    truth.update({k: v for k, v in extra.items() if v != 0})
+    if extra["G_leak"] != 0 or extra["I_offset"] != 0:
+        truth.update({"G_leak": extra["G_leak"], "I_offset": extra["I_offset"]})
     if args.n_i:
         truth["n_i"] = args.n_i
     if args.model == "maxwellian":
@@ -378,6 +424,13 @@ def cmd_batch(args) -> int:
     from .inference.sampler import SamplerSettings
 
     config = _config_from(args)
+    if args.distortions == "auto" or (args.distortions and "outliers" in args.distortions) \
+            or args.student_t == "fit":
+        raise InputError("batch models the distortions rf, resistance and leakage (--distortions); "
+                         "auto and outliers are options of the fit command")
+    if args.distortions:
+        from .distortion_choice import apply_distortions
+        config, _ = apply_distortions(args.distortions, config, None)
     priors = _read_priors(args.priors)
     settings = SamplerSettings(max_steps=max(args.max_steps, 100))
     try:

@@ -244,36 +244,66 @@ def probe_current(V, params: Mapping, config: ModelConfig, *, validate: bool = T
     V = np.asarray(V, dtype=float)
     if not config.distorted:
         return _plasma_current(V, params, config)
-    V_rf = _column(params, "V_rf") if config.rf_fluctuation else None
-
-    def plasma(v):
-        return _plasma_current(v, params, config, V_rf)
-
+    cols = _columns(params, config)
     if config.series_resistance:
-        I = _solve_series(plasma, V, _column(params, "R_series"))
+        R = _column(params, "R_series")
+        shape = np.broadcast_shapes(V.shape, np.shape(R), *(np.shape(c) for c in cols.values()))
+
+        def plasma_at(v, flat=None):
+            # flat: indices into the broadcast (k, n) grid, so the solver can iterate on a subset
+            if flat is None:
+                return _plasma_from_columns(v, cols, config)
+            return _plasma_from_columns(v, _subset(cols, shape, flat), config)
+
+        I = _solve_series(plasma_at, V, R)
     else:
-        I = plasma(V)
+        I = _plasma_from_columns(V, cols, config)
     if config.leakage:
         I = I + _column(params, "G_leak") * V + _column(params, "I_offset")
     return I
 
 
-def _plasma_current(V, params: Mapping, config: ModelConfig, V_rf=None):
-    n_e = _column(params, "n_e")
-    n_i = _column(params, "n_i") if ("n_i" in params and not config.quasi_neutral) else n_e
-    V_p = _column(params, "V_p")
+def _columns(params: Mapping, config: ModelConfig) -> dict:
+    names = ["n_e", "V_p"] + (["T_e"] if config.electrons == "maxwellian" else ["T_e_cold", "T_e_hot", "hot_fraction"])
+    cols = {n: _column(params, n) for n in names}
+    cols["n_i"] = _column(params, "n_i") if ("n_i" in params and not config.quasi_neutral) else cols["n_e"]
+    if config.rf_fluctuation:
+        cols["V_rf"] = _column(params, "V_rf")
+    return cols
+
+
+def _subset(cols: dict, shape, flat) -> dict:
+    """Parameter columns gathered at flat indices of the broadcast grid (1-D, one per element)."""
+    idx = np.unravel_index(flat, shape)
+    out = {}
+    for n, c in cols.items():
+        c = np.asarray(c)
+        if c.size == 1:
+            out[n] = c.reshape(())
+            continue
+        c = c.reshape((1,) * (len(shape) - c.ndim) + c.shape)
+        out[n] = c[tuple(i if d > 1 else 0 for i, d in zip(idx, c.shape))]
+    return out
+
+
+def _plasma_current(V, params: Mapping, config: ModelConfig):
+    return _plasma_from_columns(V, _columns(params, config), config)
+
+
+def _plasma_from_columns(V, cols: dict, config: ModelConfig):
+    """Plasma characteristic from parameter arrays already shaped to broadcast with V."""
+    n_e, n_i, V_p = cols["n_e"], cols["n_i"], cols["V_p"]
+    V_rf = cols.get("V_rf") if config.rf_fluctuation else None
     probe = config.probe
     if config.electrons == "maxwellian":
-        T_e = _column(params, "T_e")
+        T_e = cols["T_e"]
         if V_rf is None:
             I_e = _electron_current(V, V_p, n_e, T_e, probe, sheath_expansion=config.electron_sheath_expansion)
         else:
             I_e = _rf_electron_current(V, V_p, n_e, T_e, V_rf, probe, sheath_expansion=config.electron_sheath_expansion)
         T_s = T_e
     else:
-        T_c = _column(params, "T_e_cold")
-        T_h = _column(params, "T_e_hot")
-        a = _column(params, "hot_fraction")
+        T_c, T_h, a = cols["T_e_cold"], cols["T_e_hot"], cols["hot_fraction"]
         if V_rf is None:
             I_e = _electron_current(V, V_p, n_e, T_c, probe, a, T_h, config.electron_sheath_expansion)
         else:
