@@ -20,7 +20,7 @@ from matplotlib.figure import Figure
 from matplotlib.lines import Line2D
 from matplotlib.patches import Patch
 
-from .model import plasma_parameter_names, probe_current
+from .model import distortion_parameter_names, plasma_parameter_names, probe_current
 
 __all__ = ["PALETTE", "CONTOUR_LEVELS", "FIT_FIGSIZE", "plot_fit", "plot_corner", "plot_trace",
            "plot_eedf", "save_figures", "electron_current_draws"]
@@ -38,6 +38,7 @@ PALETTE = {
     "truth": "#111111",         # known true values (near black)
     "flag": "#b2182b",          # points outside +-2 sigma, warnings (crimson)
     "grid": "#d9d9d9",
+    "undistorted": "#5a8f29",   # the plasma characteristic with the fitted distortions removed (olive green)
     "posterior": "#1d4e89",     # corner-plot histograms and contours
     "chains": ("#1d4e89", "#d1770f", "#16877a", "#7b4fa0", "#8c8c8c", "#b2182b"),
 }
@@ -205,7 +206,8 @@ def _main_names(result) -> list[str]:
 
 
 def _model_params(result, idx) -> dict:
-    return {n: _flat(result, n)[idx] for n in plasma_parameter_names(result.config) if n in result.draws}
+    names = plasma_parameter_names(result.config) + distortion_parameter_names(result.config)
+    return {n: _flat(result, n)[idx] for n in names if n in result.draws}
 
 
 def electron_current_draws(result, idx=None):
@@ -220,11 +222,23 @@ def electron_current_draws(result, idx=None):
         idx = _thin_index(_n_draws(result), _MODEL_DRAWS)
     params = _model_params(result, idx)
     I_net = probe_current(V, params, result.config, validate=False)
-    separate = result.config.with_(quasi_neutral=False)
+    separate = result.config.with_(quasi_neutral=False).undistorted()
     p_e = dict(params)
     p_e["n_i"] = np.zeros_like(p_e["n_e"])
     I_e = probe_current(V, p_e, separate, validate=False)
+    if result.config.distorted:
+        # the ion current of the undistorted plasma, added to the measured (distorted) model
+        I_e = I_net + (I_e - probe_current(V, params, separate, validate=False))
     return V, np.atleast_2d(I_net), np.atleast_2d(I_e)
+
+
+def undistorted_current_draws(result, idx=None):
+    """Noise-free plasma characteristic with the fitted distortions removed, (k, n) in A."""
+    V = np.asarray(result.voltage, float)
+    if idx is None:
+        idx = _thin_index(_n_draws(result), _MODEL_DRAWS)
+    return np.atleast_2d(probe_current(V, _model_params(result, idx), result.config, validate=False,
+                                       distorted=False))
 
 
 def _noise_sd(result, idx, I_model) -> np.ndarray | None:
@@ -411,9 +425,18 @@ def plot_fit(result, *, ax=None, n_band_draws=None, truth=None) -> Figure:
     a_lin.plot(V, I * cf, ls="none", marker="o", ms=2.6, mfc="none", mew=0.6, color=PALETTE["data"],
                zorder=2)
     a_lin.plot(V[order], model_med[order] * cf, color=PALETTE["model"], lw=1.6, zorder=3)
+    distorted = result.config.distorted
     handles = [Line2D([], [], ls="none", marker="o", ms=4, mfc="none", color=PALETTE["data"],
                       label="measured"),
-               Line2D([], [], color=PALETTE["model"], lw=1.6, label="model median (noise-free)")] + handles
+               Line2D([], [], color=PALETTE["model"], lw=1.6,
+                      label="model median incl. distortions (noise-free)" if distorted
+                      else "model median (noise-free)")] + handles
+    if distorted:
+        und_med = np.median(undistorted_current_draws(result, idx), axis=0)
+        a_lin.plot(V[order], und_med[order] * cf, color=PALETTE["undistorted"], lw=1.4, ls=(0, (6, 2, 1, 2)),
+                   zorder=3.2)
+        handles.append(Line2D([], [], color=PALETTE["undistorted"], lw=1.4, ls=(0, (6, 2, 1, 2)),
+                              label="plasma characteristic, distortions removed"))
     handles += _mark_potentials(a_lin, pots, label=True)
     a_lin.axhline(0.0, color=PALETTE["grid"], lw=0.8, zorder=0.2)
     a_lin.set_ylabel(f"probe current I [{cu}]")
@@ -446,6 +469,11 @@ def plot_fit(result, *, ax=None, n_band_draws=None, truth=None) -> Figure:
                color=PALETTE["data"], zorder=2)
     good = el_med[order] > 0
     a_log.plot(V[order][good], el_med[order][good] * cf, color=PALETTE["model"], lw=1.6, zorder=3)
+    if distorted:
+        und_el = und_med + ion_med
+        good = und_el[order] > 0
+        a_log.plot(V[order][good], und_el[order][good] * cf, color=PALETTE["undistorted"], lw=1.4,
+                   ls=(0, (6, 2, 1, 2)), zorder=3.2)
     a_log.set_yscale("log")
     a_log.set_ylim(bottom * cf, top * cf * 2.0)
     _mark_potentials(a_log, pots)
@@ -469,6 +497,14 @@ def plot_fit(result, *, ax=None, n_band_draws=None, truth=None) -> Figure:
     a_res.plot(V[~out], z[~out], ls="none", marker="o", ms=2.4, mfc="none", mew=0.6,
                color=PALETTE["data"], zorder=2)
     a_res.plot(V[out], z[out], ls="none", marker="D", ms=2.8, color=PALETTE["flag"], zorder=2.2)
+    flagged = ((result.distortions or {}).get("outliers") or {}).get("indices") or []
+    if flagged:
+        fl = np.asarray(flagged, int)
+        a_res.plot(V[fl], np.clip(z[fl], -11.5, 11.5), ls="none", marker="o", ms=6.5, mfc="none", mew=1.0,
+                   color=PALETTE["flag"], zorder=2.4)
+        a_res.text(0.99, 0.95, f"{fl.size} flagged outlier(s) circled", transform=a_res.transAxes, va="top",
+                   ha="right", fontsize=7.5, color=PALETTE["flag"],
+                   bbox={"facecolor": "white", "edgecolor": "none", "alpha": 0.85, "pad": 1.5}, zorder=4)
     _mark_potentials(a_res, pots)
     finite = np.isfinite(z)
     frac = float(np.mean(out[finite])) if finite.any() else math.nan
