@@ -73,5 +73,6 @@ def psis_smooth(log_weights: np.ndarray) -> tuple[np.ndarray, float]:
     independent, so the relative efficiency passed on is 1.
     """
     lw = np.asarray(log_weights, dtype=float).copy()
-    smoothed, khat = az.psislw(lw, reff=1.0, normalize=True)
+    with np.errstate(over="ignore"):   # extreme tails overflow inside the Pareto fit; k-hat then rejects them
+        smoothed, khat = az.psislw(lw, reff=1.0, normalize=True)
     return np.asarray(smoothed, dtype=float), float(khat)

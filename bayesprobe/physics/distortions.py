@@ -37,8 +37,9 @@ V_s = V - I R, so the measured current solves the implicit equation
 ``I = f(V - I R)`` with f the plasma characteristic (Godyak & Demidov 2011;
 Hutchinson 2002 ch. 3). f is increasing in V, so g(I) = I - f(V - I R) is strictly
 increasing and has one root, bracketed by 0 and f(V). :func:`series_resistance_current`
-solves it for all walkers and points at once by safeguarded Newton iteration
-(bisection whenever a Newton step leaves the bracket). For a pure exponential
+solves it for all walkers and points at once: one Newton step, then secant steps,
+with bisection whenever a step leaves the bracket, iterating only on the elements not
+yet converged. For a pure exponential
 f = a exp(V/T) the root is I = (T/R) W(R a exp(V/T) / T) with Lambert's W, which
 the tests use as the outside check.
 
@@ -186,11 +187,14 @@ def series_resistance_current(f, V, R, *, rtol: float = 1e-10, max_iter: int = 6
 
 
 def _solve_series(f, V, R, rtol=1e-10, max_iter=60, step=1e-4):
-    """Safeguarded Newton on g(I) = I - f(V - I R).
+    """Safeguarded secant iteration on g(I) = I - f(V - I R).
 
     ``f(v, flat)`` evaluates the characteristic at voltages ``v`` for the elements
     ``flat`` (indices into the broadcast grid of V and R; ``None`` = the whole grid),
-    so the iteration runs on the elements not yet converged only.
+    so the iteration runs on the elements not yet converged only. The first step is a
+    Newton step from I = 0 with a finite-difference slope; later steps are secant
+    steps through the last two iterates, replaced by bisection of the bracket
+    [min(0, f(V)), max(0, f(V))] whenever they leave it.
     """
     V, R = np.broadcast_arrays(np.asarray(V, float), np.asarray(R, float))
     shape = V.shape
@@ -200,15 +204,15 @@ def _solve_series(f, V, R, rtol=1e-10, max_iter=60, step=1e-4):
     hi = np.maximum(f0, 0.0).ravel()
     Vf, Rf = V.ravel(), R.ravel()
     I = np.clip((f0 / (1.0 + R * np.maximum(slope0, 0.0))).ravel(), lo, hi)   # one Newton step from I = 0
+    I_prev = np.zeros(I.size)
+    g_prev = -f0.ravel().copy()                                                  # g(0) = -f(V)
     Ig = np.abs(I).reshape(shape)
     row = np.max(Ig, axis=-1, keepdims=True) if Ig.ndim else Ig
     floor = (1e-6 * np.broadcast_to(row, shape)).ravel()      # absolute floor where I passes through 0
     active = np.arange(I.size)
     for _ in range(max_iter):
-        Ia, Ra = I[active], Rf[active]
-        Vs = Vf[active] - Ia * Ra
-        fv = f(Vs, active)
-        g = Ia - fv
+        Ia = I[active]
+        g = Ia - f(Vf[active] - Ia * Rf[active], active)
         tol = rtol * np.maximum(np.abs(Ia), floor[active]) + 1e-300
         lo_a = np.where(g < 0, Ia, lo[active])
         hi_a = np.where(g > 0, Ia, hi[active])
@@ -216,12 +220,14 @@ def _solve_series(f, V, R, rtol=1e-10, max_iter=60, step=1e-4):
         keep = ~((np.abs(g) <= tol) | (hi_a - lo_a <= tol))
         if not np.any(keep):
             break
-        active, Ia, Vs, fv, g, Ra = active[keep], Ia[keep], Vs[keep], fv[keep], g[keep], Ra[keep]
-        lo_a, hi_a = lo_a[keep], hi_a[keep]
-        slope = (f(Vs + step, active) - fv) / step
-        newton = Ia - g / (1.0 + Ra * np.maximum(slope, 0.0))
-        inside = (newton > lo_a) & (newton < hi_a)
-        I[active] = np.where(inside, newton, 0.5 * (lo_a + hi_a))
+        active, Ia, g, lo_a, hi_a = active[keep], Ia[keep], g[keep], lo_a[keep], hi_a[keep]
+        Ip, gp = I_prev[active], g_prev[active]
+        dg = g - gp
+        with np.errstate(divide="ignore", invalid="ignore"):
+            secant = Ia - g * (Ia - Ip) / dg
+        inside = np.isfinite(secant) & (secant > lo_a) & (secant < hi_a)
+        I_prev[active], g_prev[active] = Ia, g
+        I[active] = np.where(inside, secant, 0.5 * (lo_a + hi_a))
     return I.reshape(shape)
 
 
