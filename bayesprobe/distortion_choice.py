@@ -33,8 +33,9 @@ _DESCRIPTION = {"rf": "RF fluctuation of the plasma potential", "resistance": "s
                 "leakage": "leakage / offset current", "outliers": "outliers (heavy-tailed noise)"}
 _MAIN_PARAMETER = {"rf": "V_rf", "resistance": "R_series", "leakage": "G_leak", "outliers": "nu"}
 #: a point is flagged as an outlier when its posterior mean weight (nu + 1)/(nu + r^2) is below this
-#: (the data give it less than a quarter of the weight of a typical point; common practice, no source)
-OUTLIER_WEIGHT = 0.25
+#: (the data give it less than a tenth of the weight of a typical point; our choice, no source: with a
+#: Gaussian bulk the fitted nu is small, and 0.25 would flag ordinary 2.5-sigma points)
+OUTLIER_WEIGHT = 0.1
 
 
 def parse_distortions(value):

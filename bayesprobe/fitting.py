@@ -324,6 +324,8 @@ def fit(voltage, current=None, *, probe: Probe | None = None, ion="Ar", ion_mass
             and student_nu > 0):
         raise ValueError(f"student_nu must be a positive number or 'fit', got {student_nu!r}")
     wanted = parse_distortions(distortions)
+    if wanted != "auto" and "outliers" in wanted:
+        apply_distortions(("outliers",), ModelConfig(), student_nu)     # checks the student_nu conflict early
     if engine not in ENGINES:
         raise ValueError(f"engine must be one of {', '.join(ENGINES)}, got {engine!r}")
     if seed is not None and not isinstance(seed, (int, np.integer)):

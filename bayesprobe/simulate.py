@@ -117,9 +117,11 @@ def simulate(truth: dict | None = None, *, config: ModelConfig | None = None,
     sigma = np.sqrt(noise_floor**2 + (noise_rel * clean) ** 2)
     noisy = clean + sigma * rng.standard_normal(voltage.size)
     n_out = 0
+    outlier_indices = []
     if outlier_fraction > 0:
         mask = rng.random(voltage.size) < outlier_fraction
         n_out = int(mask.sum())
+        outlier_indices = np.flatnonzero(mask).tolist()
         noisy[mask] = clean[mask] + outlier_scale * sigma[mask] * rng.standard_t(2, size=n_out)
     truth_out = {k: float(v) for k, v in params.items()}
     truth_out["V_f"] = float(floating_potential(params, config))
@@ -129,5 +131,5 @@ def simulate(truth: dict | None = None, *, config: ModelConfig | None = None,
                   notes=["synthetic sweep drawn from the bayesprobe forward model"])
     noise = {"noise_floor_A": float(noise_floor), "noise_rel": float(noise_rel),
              "outlier_fraction": float(outlier_fraction), "outlier_scale": float(outlier_scale),
-             "n_outliers": n_out, "seed": seed}
+             "n_outliers": n_out, "outlier_indices": outlier_indices, "seed": seed}
     return SimulatedSweep(sweep=sweep, truth=truth_out, config=config, noise=noise)
