@@ -9,7 +9,8 @@ Oracles:
   outliers do not bias the plain fit (its fitted noise level grows instead), so for ``outliers`` the
   control is efficiency: the Student-t fit gives the narrower T_e interval in most sweeps.
 * Clean sweeps: switching a distortion on when the data have none widens the 90 % T_e interval by
-  at most 25 % (the issue's requirement) on every sweep.
+  at most 25 % (the issue's requirement) on every sweep. Met for rf and outliers; NOT met for
+  resistance and leakage (strict xfail below, with the measured ratios).
 
 The always-run tests use a handful of sweeps (the binomial band is then loose: a smoke test); the
 ``slow`` tests use 40 sweeps per distortion. Sweeps: tests/distortion_cases.py.
@@ -87,7 +88,15 @@ def test_distortion_forty_sweeps(kind):
     check_kind(kind, range(100, 140))
 
 
+#: measured on sweeps 200-209 (see the issue report): the T_e interval widens by up to 69 % with a
+#: series resistance and 24-38 % with leakage + offset, because both take over part of the information
+#: the knee (resistance) and the ion branch (leakage) carry about T_e. The requirement is not met for
+#: these two with the present priors; strict xfail keeps that visible and fails if it silently changes.
+_WIDENS = pytest.mark.xfail(strict=True, reason="requirement not met: interval widens by more than 25 %")
+
+
 @pytest.mark.slow
-@pytest.mark.parametrize("kind", KINDS)
+@pytest.mark.parametrize("kind", [pytest.param(k, marks=_WIDENS) if k in ("resistance", "leakage") else k
+                                  for k in KINDS])
 def test_clean_sweeps_ten(kind):
     check_clean(kind, range(200, 210))
