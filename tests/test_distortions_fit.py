@@ -101,8 +101,9 @@ def test_distorted_fit_reports_units_measured_floating_potential_and_figure():
     assert any("incl. distortions" in t for t in labels)
 
 
+@pytest.mark.slow
 def test_auto_finds_rf_and_says_how_far_T_e_moved():
-    """auto on a sweep with a strong RF oscillation keeps rf (PSIS-LOO rule) and the note gives the
+    """(~2 min: five fits) auto on a sweep with a strong RF oscillation keeps rf (PSIS-LOO rule) and the note gives the
     shift of T_e and n_e against the undistorted fit."""
     cfg = CFG.with_(rf_fluctuation=True)
     sim = bp.simulate({"n_e": 1e16, "T_e": 3.0, "V_p": 10.0, "V_rf": 4.5}, config=cfg, n_points=300, seed=8)
