@@ -119,7 +119,7 @@ def find_map(logpost, starts, *, maxiter: int = 4000, n_local: int = 2, method: 
     ``method="quasi-newton"`` (default): L-BFGS-B with central-difference gradients, each
     gradient one vectorised call of 2d+1 rows, inside the prior bounds; then Newton steps
     with the finite-difference Hessian from the best optimum. ``method="nelder-mead"``: the
-    derivative-free route (Nelder-Mead, then a Powell polish), slower by about 5-10x but
+    derivative-free route (Nelder-Mead, then a Powell polish), 2-7x slower on probe sweeps but
     indifferent to kinks in the model.
     """
     if method not in ("quasi-newton", "nelder-mead"):
