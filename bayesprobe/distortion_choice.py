@@ -107,8 +107,11 @@ def _inside(param, value):
     return float(value)
 
 
-def describe_distortions(logpost, Z, phys, voltage) -> dict | None:
-    """The ``distortions`` block of the summary for one fit (None when nothing is modelled)."""
+def describe_distortions(logpost, Z, phys, voltage, counts=None) -> dict | None:
+    """The ``distortions`` block of the summary for one fit (None when nothing is modelled).
+
+    ``Z`` may hold the distinct draws only, with ``counts`` the number of times each occurs.
+    """
     config = logpost.config
     nu_mode = "fit" if getattr(logpost, "fit_nu", False) else logpost.student_nu
     enabled = enabled_distortions(config, nu_mode)
@@ -119,11 +122,12 @@ def describe_distortions(logpost, Z, phys, voltage) -> dict | None:
            "parameters": list(distortion_parameter_names(config)) + (["nu"] if nu_mode == "fit" else []),
            "note": ""}
     if nu_mode == "fit":
+        c = np.ones(Z.shape[0]) if counts is None else np.asarray(counts, float)
         w = np.zeros(np.asarray(voltage).size)
         for start in range(0, Z.shape[0], 500):          # chunks keep memory flat on long sweeps
             with np.errstate(over="ignore", invalid="ignore"):
-                w += logpost.outlier_weights(Z[start:start + 500]).sum(axis=0)
-        w /= Z.shape[0]
+                w += c[start:start + 500] @ logpost.outlier_weights(Z[start:start + 500])
+        w /= c.sum()
         flagged = np.flatnonzero(w < OUTLIER_WEIGHT)
         rec["outliers"] = {
             "rule": f"posterior mean precision weight (nu + 1)/(nu + r^2) below {OUTLIER_WEIGHT:g}",

@@ -165,7 +165,7 @@ def _fit_one(sweep: Sweep, config: ModelConfig, *, credible_level, priors, stude
     phys_u = params.to_physical(Zu)
     phys = {n: v[inv] for n, v in phys_u.items()}
     derived = {n: v[inv] for n, v in derived_quantities(phys_u, config).items()}
-    distortion_record = describe_distortions(logpost, Zflat, phys, V)
+    distortion_record = describe_distortions(logpost, Zu, phys, V, counts=np.bincount(inv, minlength=len(Zu)))
     t_post = time.perf_counter() - t_post
 
     def cd(x):  # (E*S'*W,) -> (chain=E, draw=S'*W)
