@@ -143,8 +143,9 @@ def _add_fit_options(p):
                    help="model sweep distortions as nuisance parameters instead of trimming the sweep: a "
                         "comma-separated list of rf (plasma-potential oscillation, fits V_rf), resistance "
                         "(series resistance, fits R_series), leakage (linear leakage and offset current, fits "
-                        "G_leak and I_offset), outliers (Student-t noise with fitted nu, flags outlier points); "
-                        "auto fits each against the plain model and keeps those PSIS-LOO supports, with a note "
+                        "G_leak and I_offset), hysteresis (a file recorded with rising and falling bias: fits "
+                        "the branch shift V_shift and the displacement current I_cap), outliers (Student-t "
+                        "noise with fitted nu, flags outlier points); auto fits each against the plain model and keeps those PSIS-LOO supports, with a note "
                         "in summary.json; none (default) models none")
     g.add_argument("--engine", choices=["mcmc", "fast", "auto"], default="mcmc",
                    help="mcmc: emcee until converged (default); fast/auto: importance sampling from the "
@@ -241,6 +242,15 @@ def build_parser() -> argparse.ArgumentParser:
                    help="leakage conductance in parallel with the probe in S (default 0)")
     s.add_argument("--current-offset", type=float, default=0.0, metavar="A",
                    help="constant current offset in A (default 0)")
+    s.add_argument("--both-directions", action="store_true",
+                   help="record the sweep with rising and then falling bias (a triangular sweep; the file "
+                        "keeps the recorded order)")
+    s.add_argument("--branch-shift", type=float, default=0.0, metavar="V",
+                   help="voltage shift of the rising-bias branch relative to the falling one in V "
+                        "(contamination layer; implies --both-directions; default 0)")
+    s.add_argument("--displacement-current", type=float, default=0.0, metavar="A",
+                   help="displacement current C dV/dt at the sweep rate in A, positive on the rising branch "
+                        "(stray capacitance; implies --both-directions; default 0)")
     s.add_argument("--seed", type=_nonneg_int, default=0)
     return p
 
@@ -375,15 +385,20 @@ def cmd_simulate(args) -> int:
     for name, flag in (("V_rf", "--rf-amplitude"), ("R_series", "--series-resistance")):
         if not (math.isfinite(extra[name]) and extra[name] >= 0):
             raise InputError(f"{flag} must be a non-negative number, got {extra[name]!r}")
-    for name, flag in (("G_leak", "--leak-conductance"), ("I_offset", "--current-offset")):
+    extra.update({"V_shift": args.branch_shift, "I_cap": args.displacement_current})
+    for name, flag in (("G_leak", "--leak-conductance"), ("I_offset", "--current-offset"),
+                       ("V_shift", "--branch-shift"), ("I_cap", "--displacement-current")):
         if not math.isfinite(extra[name]):
             raise InputError(f"{flag} must be a finite number, got {extra[name]!r}")
+    hysteresis = extra["V_shift"] != 0 or extra["I_cap"] != 0
     config = config.with_(rf_fluctuation=extra["V_rf"] > 0, series_resistance=extra["R_series"] > 0,
-                          leakage=extra["G_leak"] != 0 or extra["I_offset"] != 0)
+                          leakage=extra["G_leak"] != 0 or extra["I_offset"] != 0, hysteresis=hysteresis)
     truth = {"n_e": args.n_e, "V_p": args.V_p}
     truth.update({k: v for k, v in extra.items() if v != 0})
     if extra["G_leak"] != 0 or extra["I_offset"] != 0:
         truth.update({"G_leak": extra["G_leak"], "I_offset": extra["I_offset"]})
+    if hysteresis:
+        truth.update({"V_shift": extra["V_shift"], "I_cap": extra["I_cap"]})
     if args.n_i:
         truth["n_i"] = args.n_i
     if args.model == "maxwellian":
@@ -393,7 +408,8 @@ def cmd_simulate(args) -> int:
     try:
         sim = simulate(truth, config=config, v_min=args.v_min, v_max=args.v_max, n_points=args.points,
                        noise_rel=args.noise_rel, noise_floor=args.noise_floor, outlier_fraction=args.outliers,
-                       seed=args.seed, sweep_id=args.out.stem)
+                       seed=args.seed, sweep_id=args.out.stem,
+                       both_directions=args.both_directions or hysteresis)
     except ValueError as exc:
         raise InputError(" ".join(str(exc).split())) from None
     out = args.out
@@ -412,7 +428,8 @@ def cmd_simulate(args) -> int:
 
         from .io import atomic_write_bytes
         buf = _io.BytesIO()
-        np.savez(buf, voltage=sim.sweep.voltage, current=sim.sweep.current)
+        v_rec, i_rec = sim.sweep.in_record_order()
+        np.savez(buf, voltage=v_rec, current=i_rec)
         atomic_write_bytes(out, buf.getvalue())
     atomic_write_text(truth_path, json.dumps(sim.truth_record(), indent=2) + "\n")
     print(f"wrote {out} ({sim.sweep.n_points} points) and {truth_path}")
@@ -426,7 +443,7 @@ def cmd_batch(args) -> int:
     config = _config_from(args)
     if args.distortions == "auto" or (args.distortions and "outliers" in args.distortions) \
             or args.student_t == "fit":
-        raise InputError("batch models the distortions rf, resistance and leakage (--distortions); "
+        raise InputError("batch models the distortions rf, resistance, leakage and hysteresis (--distortions); "
                          "auto and outliers are options of the fit command")
     if args.distortions:
         from .distortion_choice import apply_distortions

@@ -28,10 +28,13 @@ __all__ = ["DISTORTIONS", "parse_distortions", "apply_distortions", "enabled_dis
 
 #: user-facing distortion name -> ModelConfig switch (``outliers`` is a likelihood choice)
 DISTORTIONS = {"rf": "rf_fluctuation", "resistance": "series_resistance", "leakage": "leakage",
-               "outliers": None}
+               "hysteresis": "hysteresis", "outliers": None}
 _DESCRIPTION = {"rf": "RF fluctuation of the plasma potential", "resistance": "series (circuit) resistance",
-                "leakage": "leakage / offset current", "outliers": "outliers (heavy-tailed noise)"}
-_MAIN_PARAMETER = {"rf": "V_rf", "resistance": "R_series", "leakage": "G_leak", "outliers": "nu"}
+                "leakage": "leakage / offset current",
+                "hysteresis": "up/down sweep hysteresis (branch shift, displacement current)",
+                "outliers": "outliers (heavy-tailed noise)"}
+_MAIN_PARAMETER = {"rf": "V_rf", "resistance": "R_series", "leakage": "G_leak", "hysteresis": "V_shift",
+                   "outliers": "nu"}
 #: a point is flagged as an outlier when its posterior mean weight (nu + 1)/(nu + r^2) is below this
 #: (the data give it less than a tenth of the weight of a typical point; our choice, no source: with a
 #: Gaussian bulk the fitted nu is small, and 0.25 would flag ordinary 2.5-sigma points)
@@ -93,6 +96,8 @@ def distortion_starts(params, T0: float) -> list:
         extras.append({"R_series": _inside(params["R_series"], 0.05 * hi)})
     if "G_leak" in names:
         base.update({"G_leak": 0.0, "I_offset": 0.0})
+    if "V_shift" in names:
+        base.update({"V_shift": 0.0, "I_cap": 0.0})
     if "nu" in names:
         base["nu"] = 10.0
         extras.append({"nu": 3.0})
@@ -107,10 +112,11 @@ def _inside(param, value):
     return float(value)
 
 
-def describe_distortions(logpost, Z, phys, voltage, counts=None) -> dict | None:
+def describe_distortions(logpost, Z, phys, voltage, counts=None, credible_level=0.9) -> dict | None:
     """The ``distortions`` block of the summary for one fit (None when nothing is modelled).
 
-    ``Z`` may hold the distinct draws only, with ``counts`` the number of times each occurs.
+    ``Z`` may hold the distinct draws only, with ``counts`` the number of times each occurs;
+    ``phys`` holds every draw.
     """
     config = logpost.config
     nu_mode = "fit" if getattr(logpost, "fit_nu", False) else logpost.student_nu
@@ -136,7 +142,25 @@ def describe_distortions(logpost, Z, phys, voltage, counts=None) -> dict | None:
             "mean_weight": w[flagged].tolist(), "nu_median": float(np.median(phys["nu"]))}
         rec["note"] = (f"{flagged.size} point(s) flagged as outliers (Student-t, fitted nu = "
                        f"{np.median(phys['nu']):.3g}).")
+    if config.hysteresis:
+        rec["hysteresis"] = _hysteresis_record(phys, credible_level)
+        rec["note"] = (rec["note"] + " " + rec["hysteresis"]["note"]).strip()
     return rec
+
+
+def _hysteresis_record(phys, level):
+    q = [(1 - level) / 2, 0.5, (1 + level) / 2]
+    dv = np.quantile(phys["V_shift"], q)
+    ic = np.quantile(phys["I_cap"], q)
+    pct = f"{100 * level:g} %"
+    note = (f"Rising- and falling-bias branches are shifted by V_shift = {dv[1]:.3g} V ({pct} interval "
+            f"{dv[0]:.3g} to {dv[2]:.3g} V; positive: the rising branch sits at higher bias); displacement "
+            f"current at the mean sweep rate I_cap = {ic[1]:.3g} A ({ic[0]:.3g} to {ic[2]:.3g} A).")
+    return {"V_shift_V": {"median": float(dv[1]), "lower": float(dv[0]), "upper": float(dv[2])},
+            "I_cap_A": {"median": float(ic[1]), "lower": float(ic[0]), "upper": float(ic[2])},
+            "credible_level": level,
+            "shift_excludes_zero": bool(dv[0] > 0 or dv[2] < 0),
+            "note": note}
 
 
 def _temperature_name(result):
@@ -153,10 +177,11 @@ def _shift(plain, chosen, name):
             "shift_in_plain_sd": d / a["sd"] if a["sd"] else None}
 
 
-def select_distortions(fit_fn, config, student_nu):
+def select_distortions(fit_fn, config, student_nu, *, both_directions=False):
     """``auto``: fit the plain model and each distortion alone, keep those PSIS-LOO supports.
 
-    ``fit_fn(config, student_nu)`` runs one fit. Returns the chosen FitResult with
+    ``fit_fn(config, student_nu)`` runs one fit; ``hysteresis`` is a candidate only when
+    the sweep holds both directions (``both_directions``). Returns the chosen FitResult with
     ``distortions["selection"]`` filled in (candidates, the rule, shifts of T_e and n
     relative to the plain fit, and a plain-language note).
     """
@@ -167,6 +192,8 @@ def select_distortions(fit_fn, config, student_nu):
     for name in DISTORTIONS:
         if name == "outliers" and base_nu is not None:
             continue                                 # a fixed Student-t likelihood was asked for
+        if name == "hysteresis" and not both_directions:
+            continue
         cfg, nu = apply_distortions((name,), base, base_nu)
         res = fit_fn(cfg, nu)
         results[name] = res
@@ -188,7 +215,7 @@ def select_distortions(fit_fn, config, student_nu):
                  "rule": (f"a distortion is kept only if its elpd_loo exceeds the undistorted model's by more "
                           f"than {ELPD_MIN:g} and by more than {SE_MULTIPLE:g} standard errors of the difference"),
                  "candidates": candidates, "found": found, "shifts_vs_undistorted": shifts,
-                 "note": _note(found, chosen, shifts, T)}
+                 "note": _note(found, chosen, shifts, T, tried=list(candidates))}
     rec = chosen.distortions or {"enabled": [], "descriptions": {}, "parameters": [], "note": ""}
     rec = dict(rec)
     rec["selection"] = selection
@@ -201,11 +228,11 @@ def _fmt(v, unit):
     return f"{v:.3g} {unit}".strip()
 
 
-def _note(found, chosen, shifts, T):
+def _note(found, chosen, shifts, T, tried=()):
     if not found:
-        return ("No distortion is supported by these data: each modelled distortion (RF fluctuation, series "
-                "resistance, leakage, outliers) failed to improve the leave-one-out predictive density enough, "
-                "so the undistorted model is kept.")
+        names = ", ".join(_DESCRIPTION[n] for n in tried) or "none"
+        return (f"No distortion is supported by these data: each modelled distortion ({names}) failed to "
+                f"improve the leave-one-out predictive density enough, so the undistorted model is kept.")
     ps = chosen.parameter_summary()
     parts = []
     for n in found:

@@ -32,7 +32,7 @@ AUTO_RICH_MAX_STEPS = 4000
 def make_config(*, probe=None, ion="Ar", ion_mass=None, ion_collection="auto", electrons="maxwellian",
                 quasi_neutral=False, T_i=0.026, bohm_factor=float(np.exp(-0.5)), sheath_expansion=True,
                 electron_sheath_expansion=False, rf_fluctuation=False, series_resistance=False,
-                leakage=False) -> ModelConfig:
+                leakage=False, hysteresis=False) -> ModelConfig:
     """Build a :class:`ModelConfig` from plain options (``ion_mass`` in u overrides ``ion``)."""
     if probe is None:
         probe = Probe("cylindrical", radius=50e-6, length=5e-3)
@@ -42,7 +42,7 @@ def make_config(*, probe=None, ion="Ar", ion_mass=None, ion_collection="auto", e
                        ion_collection=ion_collection, electrons=electrons, quasi_neutral=quasi_neutral,
                        T_i=T_i, bohm_factor=bohm_factor, sheath_expansion=sheath_expansion,
                        electron_sheath_expansion=electron_sheath_expansion, rf_fluctuation=rf_fluctuation,
-                       series_resistance=series_resistance, leakage=leakage)
+                       series_resistance=series_resistance, leakage=leakage, hysteresis=hysteresis)
 
 
 def _as_sweep(voltage, current, sign):
@@ -120,7 +120,7 @@ def _fit_one(sweep: Sweep, config: ModelConfig, *, credible_level, priors, stude
              progress, cls, engine="mcmc", is_settings=None, start=None) -> FitResult:
     V, I = sweep.voltage, sweep.current
     params = default_parameters(config, V, I, fit_nu=student_nu == "fit").with_priors(priors)
-    logpost = LogPosterior(V, I, config, params, student_nu=student_nu)
+    logpost = LogPosterior(V, I, config, params, student_nu=student_nu, branches=sweep.branches)
     t0 = time.perf_counter()
     starts = _starts(params, cls, V, I, config)
     z_warm = _warm_start_z(params, start)
@@ -165,7 +165,8 @@ def _fit_one(sweep: Sweep, config: ModelConfig, *, credible_level, priors, stude
     phys_u = params.to_physical(Zu)
     phys = {n: v[inv] for n, v in phys_u.items()}
     derived = {n: v[inv] for n, v in derived_quantities(phys_u, config).items()}
-    distortion_record = describe_distortions(logpost, Zu, phys, V, counts=np.bincount(inv, minlength=len(Zu)))
+    distortion_record = describe_distortions(logpost, Zu, phys, V, counts=np.bincount(inv, minlength=len(Zu)),
+                                             credible_level=credible_level)
     t_post = time.perf_counter() - t_post
 
     def cd(x):  # (E*S'*W,) -> (chain=E, draw=S'*W)
@@ -239,8 +240,10 @@ def _fit_one(sweep: Sweep, config: ModelConfig, *, credible_level, priors, stude
             observed_data={"current": I},
             posterior_predictive={"current": cd(ppc)},
             sample_stats=sample_stats,
-            constant_data={"voltage": V},
-            coords=coords, dims={"current": ["point"], "voltage": ["point"]},
+            constant_data={"voltage": V} if sweep.branches is None else
+            {"voltage": V, "direction": sweep.branches[0], "ramp": sweep.branches[1]},
+            coords=coords, dims={"current": ["point"], "voltage": ["point"], "direction": ["point"],
+                                 "ramp": ["point"]},
             attrs={"bayesprobe_model": config.electrons, "parameter_order": ",".join(params.names),
                    "units": ";".join(f"{k}={v}" for k, v in units.items()),
                    "credible_level": credible_level, "thin_steps": thin},
@@ -252,9 +255,10 @@ def _fit_one(sweep: Sweep, config: ModelConfig, *, credible_level, priors, stude
                      parameter_order=params.names, priors=params.describe(), diagnostics=diagnostics,
                      classical=cls_dict, credible_level=credible_level, idata_builder=build_idata,
                      sweep_info={"source": sweep.source, "sweep_id": sweep.sweep_id, "n_points": sweep.n_points,
-                                 "notes": list(sweep.notes), "sign_flipped": sweep.sign_flipped},
+                                 "notes": list(sweep.notes), "sign_flipped": sweep.sign_flipped,
+                                 "both_directions": sweep.branches is not None},
                      map_estimate=map_phys, student_nu=student_nu, seed=seed,
-                     settings=asdict(settings), distortions=distortion_record)
+                     settings=asdict(settings), distortions=distortion_record, branches=sweep.branches)
 
 
 def fit(voltage, current=None, *, probe: Probe | None = None, ion="Ar", ion_mass=None,
@@ -305,11 +309,12 @@ def fit(voltage, current=None, *, probe: Probe | None = None, ion="Ar", ion_mass
     distortions : str or iterable of str, optional
         Distortions to model as nuisance parameters (see :mod:`bayesprobe.physics.distortions`):
         ``"rf"`` (plasma-potential oscillation, parameter V_rf), ``"resistance"`` (series
-        resistance R_series), ``"leakage"`` (G_leak, I_offset), ``"outliers"`` (Student-t
-        likelihood with fitted nu and an outlier flag list); a list or a comma-separated
-        string. ``"auto"`` fits each against the plain model and keeps those PSIS-LOO
-        supports (rule of :mod:`bayesprobe.comparison`), with a plain-language note in
-        ``summary()["distortions"]``. ``None`` or ``"none"``: as set in ``config``.
+        resistance R_series), ``"leakage"`` (G_leak, I_offset), ``"hysteresis"`` (a sweep
+        recorded with rising and falling bias: branch shift V_shift and displacement current
+        I_cap, see :mod:`bayesprobe.model`), ``"outliers"`` (Student-t likelihood with fitted
+        nu and an outlier flag list); a list or a comma-separated string. ``"auto"`` fits each against the plain model and keeps those PSIS-LOO
+        supports (rule of :mod:`bayesprobe.comparison`; hysteresis only for sweeps with both
+        directions), with a plain-language note in ``summary()["distortions"]``. ``None`` or ``"none"``: as set in ``config``.
 
     Returns
     -------
@@ -340,8 +345,11 @@ def fit(voltage, current=None, *, probe: Probe | None = None, ion="Ar", ion_mass
             lambda cfg, nu: fit(sweep, config=cfg, model=model, credible_level=credible_level, priors=priors,
                                 student_nu=nu, seed=seed, sampler=settings, progress=progress, engine=engine,
                                 start=start),
-            config, student_nu)
+            config, student_nu, both_directions=sweep.branches is not None)
     config, student_nu = apply_distortions(wanted, config, student_nu)
+    if config.hysteresis and sweep.branches is None:
+        raise ValueError("the hysteresis distortion needs a sweep recorded with rising and falling bias "
+                         "(this one has a single direction)")
     # every matrix here is tiny (d x d, or draws x d): multithreaded BLAS only adds thread wake-ups,
     # which made each L-BFGS-B iteration ~10x slower on a 2-core machine with other load
     from threadpoolctl import threadpool_limits

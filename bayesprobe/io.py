@@ -21,7 +21,7 @@ from typing import Iterator, Sequence
 import numpy as np
 
 from .errors import InputError
-from .sweep import Sweep
+from .sweep import Sweep, detect_branches
 
 __all__ = [
     "load_sweep",
@@ -371,10 +371,21 @@ def sweep_from_arrays(
             f"record a sweep with more voltage steps"
         )
 
+    branches = detect_branches(v)
+    direction = ramp = record_order = None
     if np.any(np.diff(v) < 0):
         order = np.argsort(v, kind="stable")
         v, i = v[order], i[order]
-        out_notes.append("sorted by voltage (the input was not in increasing voltage order)")
+        if branches is not None:
+            direction, ramp = branches[0][order], branches[1][order]
+            record_order = order
+            n_up = int(np.count_nonzero(direction > 0))
+            out_notes.append(
+                f"holds both sweep directions ({n_up} points recorded with rising bias, {v.size - n_up} with "
+                f"falling bias); sorted by voltage, directions kept (model their difference with the "
+                f"hysteresis distortion)")
+        else:
+            out_notes.append("sorted by voltage (the input was not in increasing voltage order)")
 
     span = float(v[-1] - v[0])
     if span < MIN_VOLTAGE_SPAN:
@@ -428,6 +439,9 @@ def sweep_from_arrays(
         source=str(source),
         notes=out_notes,
         sign_flipped=flipped,
+        direction=direction,
+        ramp=ramp,
+        record_order=record_order,
     )
 
 
@@ -1073,13 +1087,16 @@ def staged_output_dir(out_dir) -> Iterator[Path]:
 def write_sweep_csv(path, sweep_or_arrays, *, header_comment: str | None = None) -> Path:
     """Write a sweep as ``voltage_V,current_A`` CSV, atomically.
 
+    A :class:`Sweep` holding both sweep directions is written in its recorded
+    order, so reading the file back recovers the directions.
+
     ``sweep_or_arrays`` is a :class:`Sweep` or a pair ``(voltage, current)``
     of 1-D arrays in V and A.  Each line of ``header_comment`` becomes a
     ``# `` comment line above the header.  Values are written with enough
     digits to read back exactly.
     """
     if isinstance(sweep_or_arrays, Sweep):
-        v, i = sweep_or_arrays.voltage, sweep_or_arrays.current
+        v, i = sweep_or_arrays.in_record_order()
     else:
         try:
             v, i = sweep_or_arrays

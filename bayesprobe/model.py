@@ -25,6 +25,9 @@ Distortion (nuisance) parameters, present when the matching ``ModelConfig`` swit
 ``R_series``     ohm     resistance in series with the probe sheath (``series_resistance``)
 ``G_leak``       S       leakage conductance in parallel with the probe (``leakage``)
 ``I_offset``     A       constant current offset (``leakage``)
+``V_shift``      V       voltage shift of the rising-bias branch relative to the
+                         falling one (``hysteresis``)
+``I_cap``        A       displacement current at the mean sweep rate (``hysteresis``)
 ===============  ======  ==========================================================
 
 The measured current is ``I = f(V - I R_series) + G_leak V + I_offset`` with ``f`` the
@@ -32,6 +35,27 @@ plasma characteristic (its electron part phase-averaged over the RF oscillation)
 :func:`floating_potential` is the floating potential of the undistorted plasma
 characteristic; :func:`measured_floating_potential` is the zero crossing of the full
 distorted model (what the instrument shows).
+
+Up/down sweep hysteresis (``hysteresis``; a sweep recorded in both directions)
+-------------------------------------------------------------------------------
+The two branches share every plasma parameter; what differs between them is
+
+* a voltage shift: a contamination layer on the tip is a leaky capacitor in series
+  with the sheath, so the surface potential lags the applied bias and the rising
+  branch appears displaced along V relative to the falling one (E. P. Szuszczewicz &
+  J. C. Holmes, J. Appl. Phys. 46, 5134 (1975); Hutchinson, *Principles of Plasma
+  Diagnostics*, 2nd ed. (2002), ch. 3; from memory). Modelled as the sheath seeing
+  ``V - d V_shift / 2`` with ``d = +1`` on the rising branch and ``-1`` on the
+  falling one, so ``V_shift > 0`` means the rising branch sits at higher bias and
+  ``V_p`` is the mean of the two branches;
+* a displacement current through the stray capacitance C of probe and cable,
+  ``C dV/dt`` (circuit theory), of opposite sign on the two branches. Written as
+  ``I_cap * r`` with ``r`` the sweep rate at each point divided by its mean magnitude
+  (``Sweep.ramp``), so ``I_cap = C <|dV/dt|>``.
+
+Leakage is added at the applied bias, the shift acts at the sheath (inside the series
+resistance). The per-point ``direction`` and ``ramp`` come with the sweep
+(:func:`bayesprobe.sweep.detect_branches`) and are passed as ``branches``.
 """
 from __future__ import annotations
 
@@ -53,7 +77,7 @@ __all__ = ["ModelConfig", "ELECTRON_MODELS", "probe_current", "floating_potentia
 ELECTRON_MODELS = ("maxwellian", "bi-maxwellian")
 #: ModelConfig switch -> the nuisance parameters it adds
 DISTORTION_SWITCHES = {"rf_fluctuation": ("V_rf",), "series_resistance": ("R_series",),
-                       "leakage": ("G_leak", "I_offset")}
+                       "leakage": ("G_leak", "I_offset"), "hysteresis": ("V_shift", "I_cap")}
 
 
 @dataclass(frozen=True)
@@ -84,6 +108,9 @@ class ModelConfig:
         Solve I = f(V - I R_series) for a fitted series resistance.
     leakage : bool
         Add a leakage/offset current G_leak V + I_offset.
+    hysteresis : bool
+        Fit a sweep recorded in both directions with a branch voltage shift
+        ``V_shift`` and a displacement current ``I_cap`` (needs ``branches``).
     """
 
     probe: Probe = field(default_factory=lambda: Probe("cylindrical", radius=50e-6, length=5e-3))
@@ -99,15 +126,16 @@ class ModelConfig:
     rf_fluctuation: bool = False
     series_resistance: bool = False
     leakage: bool = False
+    hysteresis: bool = False
 
     @property
     def distorted(self) -> bool:
         """True when any instrument/plasma distortion is switched on."""
-        return bool(self.rf_fluctuation or self.series_resistance or self.leakage)
+        return bool(self.rf_fluctuation or self.series_resistance or self.leakage or self.hysteresis)
 
     def undistorted(self) -> "ModelConfig":
         """The same plasma model with every distortion switched off."""
-        return replace(self, rf_fluctuation=False, series_resistance=False, leakage=False)
+        return replace(self, rf_fluctuation=False, series_resistance=False, leakage=False, hysteresis=False)
 
     def __post_init__(self):
         if not isinstance(self.probe, Probe):
@@ -144,7 +172,7 @@ class ModelConfig:
                 "electron_sheath_expansion": self.electron_sheath_expansion,
                 "quasi_neutral": self.quasi_neutral,
                 "rf_fluctuation": self.rf_fluctuation, "series_resistance": self.series_resistance,
-                "leakage": self.leakage}
+                "leakage": self.leakage, "hysteresis": self.hysteresis}
 
     @classmethod
     def from_dict(cls, d: Mapping) -> "ModelConfig":
@@ -155,7 +183,8 @@ class ModelConfig:
                    quasi_neutral=d["quasi_neutral"],
                    rf_fluctuation=bool(d.get("rf_fluctuation", False)),
                    series_resistance=bool(d.get("series_resistance", False)),
-                   leakage=bool(d.get("leakage", False)))
+                   leakage=bool(d.get("leakage", False)),
+                   hysteresis=bool(d.get("hysteresis", False)))
 
 
 def plasma_parameter_names(config: ModelConfig) -> tuple[str, ...]:
@@ -214,7 +243,7 @@ def _switch_of(name):
 
 
 def probe_current(V, params: Mapping, config: ModelConfig, *, validate: bool = True,
-                  distorted: bool = True):
+                  distorted: bool = True, branches=None):
     """Net probe current I = I_e - I_i (electron current positive), in A.
 
     Parameters
@@ -231,6 +260,10 @@ def probe_current(V, params: Mapping, config: ModelConfig, *, validate: bool = T
     distorted : bool
         With False, the undistorted plasma characteristic (distortion switches and
         their parameters ignored).
+    branches : (direction, ramp), optional
+        Per-point sweep direction (+1 rising, -1 falling) and relative sweep rate,
+        each shape (n,) like ``V`` (:attr:`bayesprobe.Sweep.branches`); needed when
+        ``config.hysteresis`` is on. ``(0, 0)`` gives the mean of the two branches.
 
     Returns
     -------
@@ -244,6 +277,13 @@ def probe_current(V, params: Mapping, config: ModelConfig, *, validate: bool = T
     V = np.asarray(V, dtype=float)
     if not config.distorted:
         return _plasma_current(V, params, config)
+    V_applied = V
+    if config.hysteresis:
+        if branches is None:
+            raise ValueError("the hysteresis distortion needs the sweep direction of every point "
+                             "(a sweep recorded with rising and falling bias)")
+        direction, ramp = (np.asarray(b, float) for b in branches)
+        V = V - 0.5 * direction * _column(params, "V_shift")
     cols = _columns(params, config)
     if config.series_resistance:
         R = _column(params, "R_series")
@@ -259,7 +299,9 @@ def probe_current(V, params: Mapping, config: ModelConfig, *, validate: bool = T
     else:
         I = _plasma_from_columns(V, cols, config)
     if config.leakage:
-        I = I + _column(params, "G_leak") * V + _column(params, "I_offset")
+        I = I + _column(params, "G_leak") * V_applied + _column(params, "I_offset")
+    if config.hysteresis:
+        I = I + _column(params, "I_cap") * ramp
     return I
 
 
@@ -364,7 +406,8 @@ def measured_floating_potential(params: Mapping, config: ModelConfig, *, iterati
 
     Vectorised bisection on [V_p - 80 T_max, V_p + 10 T_max], each set evaluated at its
     own voltage; NaN where the measured current does not change sign in that bracket
-    (e.g. a leakage current larger than the ion saturation current).
+    (e.g. a leakage current larger than the ion saturation current). With hysteresis,
+    the zero crossing of the mean of the two branches.
     Equals :func:`floating_potential` when no distortion is on.
     """
     if not config.distorted:
@@ -376,8 +419,10 @@ def measured_floating_potential(params: Mapping, config: ModelConfig, *, iterati
     T_max = np.broadcast_to(np.atleast_1d(T_max), V_p.shape)
     single = {k: np.atleast_1d(np.asarray(v, float)) for k, v in params.items()}
 
+    mean_branch = (np.zeros(1), np.zeros(1)) if config.hysteresis else None
+
     def current_at(v):
-        return probe_current(v[:, None], single, config, validate=False)[:, 0]
+        return probe_current(v[:, None], single, config, validate=False, branches=mean_branch)[:, 0]
 
     lo = V_p - 80.0 * T_max
     hi = V_p + 10.0 * T_max

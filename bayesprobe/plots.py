@@ -221,7 +221,7 @@ def electron_current_draws(result, idx=None):
     if idx is None:
         idx = _thin_index(_n_draws(result), _MODEL_DRAWS)
     params = _model_params(result, idx)
-    I_net = probe_current(V, params, result.config, validate=False)
+    I_net = probe_current(V, params, result.config, validate=False, branches=result.branches)
     separate = result.config.with_(quasi_neutral=False).undistorted()
     p_e = dict(params)
     p_e["n_i"] = np.zeros_like(p_e["n_e"])
@@ -230,6 +230,14 @@ def electron_current_draws(result, idx=None):
         # the ion current of the undistorted plasma, added to the measured (distorted) model
         I_e = I_net + (I_e - probe_current(V, params, separate, validate=False))
     return V, np.atleast_2d(I_net), np.atleast_2d(I_e)
+
+
+def _segments(result, order):
+    """Index arrays (increasing V) of the curves to draw: one, or the rising and falling branches."""
+    if result.branches is None:
+        return [order]
+    direction = np.asarray(result.branches[0])[order]
+    return [order[direction > 0], order[direction < 0]]
 
 
 def undistorted_current_draws(result, idx=None):
@@ -397,6 +405,7 @@ def plot_fit(result, *, ax=None, n_band_draws=None, truth=None) -> Figure:
     V = np.asarray(result.voltage, float)
     I = np.asarray(result.current, float)
     order = np.argsort(V, kind="stable")
+    segs = _segments(result, order)          # the rising and falling branches are drawn as separate curves
 
     idx = _thin_index(_n_draws(result), n_band_draws or _MODEL_DRAWS)
     _, I_mod, I_el = electron_current_draws(result, idx)
@@ -416,18 +425,26 @@ def plot_fit(result, *, ax=None, n_band_draws=None, truth=None) -> Figure:
     handles = []
     if pred is not None:
         lo, med, hi = pred
-        a_lin.fill_between(V[order], lo[order] * cf, hi[order] * cf, color=PALETTE["band"], lw=0,
-                           zorder=1.5)
-        a_lin.plot(V[order], med[order] * cf, color=PALETTE["ppc"], lw=1.0, ls=(0, (5, 2)), zorder=2.5)
+        for seg in segs:
+            a_lin.fill_between(V[seg], lo[seg] * cf, hi[seg] * cf, color=PALETTE["band"], lw=0, zorder=1.5)
+            a_lin.plot(V[seg], med[seg] * cf, color=PALETTE["ppc"], lw=1.0, ls=(0, (5, 2)), zorder=2.5)
         handles += [Patch(color=PALETTE["band"], label=f"{level * 100:g} % posterior-predictive band"),
                     Line2D([], [], color=PALETTE["ppc"], lw=1.0, ls=(0, (5, 2)),
                            label="posterior-predictive median")]
-    a_lin.plot(V, I * cf, ls="none", marker="o", ms=2.6, mfc="none", mew=0.6, color=PALETTE["data"],
-               zorder=2)
-    a_lin.plot(V[order], model_med[order] * cf, color=PALETTE["model"], lw=1.6, zorder=3)
+    falling = np.zeros(V.size, bool) if result.branches is None else np.asarray(result.branches[0]) < 0
+    a_lin.plot(V[~falling], I[~falling] * cf, ls="none", marker="o", ms=2.6, mfc="none", mew=0.6,
+               color=PALETTE["data"], zorder=2)
+    a_lin.plot(V[falling], I[falling] * cf, ls="none", marker="s", ms=2.4, mfc="none", mew=0.6,
+               color=PALETTE["data"], zorder=2)
+    for seg in segs:
+        a_lin.plot(V[seg], model_med[seg] * cf, color=PALETTE["model"], lw=1.6, zorder=3)
     distorted = result.config.distorted
-    handles = [Line2D([], [], ls="none", marker="o", ms=4, mfc="none", color=PALETTE["data"],
-                      label="measured"),
+    data_handles = [Line2D([], [], ls="none", marker="o", ms=4, mfc="none", color=PALETTE["data"],
+                           label="measured" if result.branches is None else "measured, rising bias")]
+    if result.branches is not None:
+        data_handles.append(Line2D([], [], ls="none", marker="s", ms=4, mfc="none", color=PALETTE["data"],
+                                   label="measured, falling bias"))
+    handles = data_handles + [
                Line2D([], [], color=PALETTE["model"], lw=1.6,
                       label="model median incl. distortions (noise-free)" if distorted
                       else "model median (noise-free)")] + handles
@@ -462,13 +479,14 @@ def plot_fit(result, *, ax=None, n_band_draws=None, truth=None) -> Figure:
     if pred is not None:
         lo_e = np.clip(pred[0] + ion_med, bottom * 1e-2, None)
         hi_e = np.clip(pred[2] + ion_med, bottom * 1e-2, None)
-        a_log.fill_between(V[order], lo_e[order] * cf, hi_e[order] * cf, color=PALETTE["band"], lw=0,
-                           zorder=1.5)
+        for seg in segs:
+            a_log.fill_between(V[seg], lo_e[seg] * cf, hi_e[seg] * cf, color=PALETTE["band"], lw=0, zorder=1.5)
     pos = I_e_data > 0
     a_log.plot(V[pos], I_e_data[pos] * cf, ls="none", marker="o", ms=2.6, mfc="none", mew=0.6,
                color=PALETTE["data"], zorder=2)
-    good = el_med[order] > 0
-    a_log.plot(V[order][good], el_med[order][good] * cf, color=PALETTE["model"], lw=1.6, zorder=3)
+    for seg in segs:
+        good = el_med[seg] > 0
+        a_log.plot(V[seg][good], el_med[seg][good] * cf, color=PALETTE["model"], lw=1.6, zorder=3)
     if distorted:
         und_el = und_med + ion_med
         good = und_el[order] > 0

@@ -60,6 +60,9 @@ class FitResult:
     idata : arviz.InferenceData
         posterior, sample_stats, log_likelihood, observed_data, posterior_predictive; built on
         first use from ``idata_builder`` when the fit supplied one instead.
+    branches : (direction, ramp) or None
+        Per-point sweep direction and relative sweep rate of a sweep recorded both ways
+        (:attr:`bayesprobe.Sweep.branches`), in the order of ``voltage``.
     """
 
     model: str
@@ -82,6 +85,7 @@ class FitResult:
     seed: int | None = None
     settings: dict = field(default_factory=dict)
     distortions: dict | None = None
+    branches: tuple | None = None
     idata_builder: object = field(default=None, repr=False, compare=False)
 
     @property

@@ -5,8 +5,10 @@ sigma_i^2 = sigma_floor^2 + (sigma_rel * |I_i|)^2, optionally with a fraction of
 heavy-tailed outliers (Student-t with 2 degrees of freedom, scaled by
 ``outlier_scale`` times the local sigma). Distortions switched on in the config
 (RF fluctuation, series resistance, leakage) are simulated with the truth values
-``V_rf``, ``R_series``, ``G_leak``, ``I_offset`` (default 0). Everything is
-reproducible from ``seed``.
+``V_rf``, ``R_series``, ``G_leak``, ``I_offset`` (default 0). ``both_directions``
+records the grid with rising and then falling bias (a triangular sweep sampled
+uniformly in time); with the ``hysteresis`` switch the branches then differ by
+``V_shift`` and ``I_cap`` (default 0). Everything is reproducible from ``seed``.
 """
 from __future__ import annotations
 
@@ -17,7 +19,7 @@ import numpy as np
 from .model import (ModelConfig, distortion_parameter_names, floating_potential, measured_floating_potential,
                     plasma_parameter_names, probe_current)
 from .physics.geometry import Probe
-from .sweep import Sweep
+from .sweep import Sweep, detect_branches
 
 __all__ = ["SimulatedSweep", "simulate", "DEFAULT_TRUTH"]
 
@@ -40,7 +42,7 @@ class SimulatedSweep:
                 "parameters": {k: float(v) for k, v in self.truth.items()},
                 "units": {"n_e": "m^-3", "n_i": "m^-3", "T_e": "eV", "T_e_cold": "eV", "T_e_hot": "eV",
                           "hot_fraction": "1", "V_p": "V", "V_f": "V", "V_f_measured": "V", "V_rf": "V",
-                          "R_series": "ohm", "G_leak": "S", "I_offset": "A"},
+                          "R_series": "ohm", "G_leak": "S", "I_offset": "A", "V_shift": "V", "I_cap": "A"},
                 "model": self.config.to_dict(), "noise": self.noise,
                 "n_points": self.sweep.n_points}
 
@@ -49,7 +51,7 @@ def simulate(truth: dict | None = None, *, config: ModelConfig | None = None,
              voltage=None, v_min: float | None = None, v_max: float | None = None, n_points: int = 500,
              noise_floor: float | None = None, noise_rel: float = 0.01,
              outlier_fraction: float = 0.0, outlier_scale: float = 20.0,
-             seed: int | None = 0, sweep_id: str = "simulated") -> SimulatedSweep:
+             seed: int | None = 0, sweep_id: str = "simulated", both_directions: bool = False) -> SimulatedSweep:
     """Draw one synthetic sweep from the forward model.
 
     Parameters
@@ -72,6 +74,10 @@ def simulate(truth: dict | None = None, *, config: ModelConfig | None = None,
         ``outlier_scale`` times the local sd.
     seed : int
         Random seed (``numpy.random.default_rng``).
+    both_directions : bool
+        Record the voltage grid rising and then falling (the default grid gets
+        ``n_points`` rounded up to even in total, half each way; a given ``voltage`` grid is
+        swept both ways); needed by the ``hysteresis`` switch. The sweep carries the directions.
     """
     config = config or ModelConfig()
     params = dict(DEFAULT_TRUTH)
@@ -100,6 +106,7 @@ def simulate(truth: dict | None = None, *, config: ModelConfig | None = None,
         raise ValueError(f"n_points must be an integer >= 2, got {n_points!r}")
 
     T_scale = params.get("T_e", params.get("T_e_cold"))
+    user_grid = voltage is not None
     if voltage is None:
         lo = params["V_p"] - 12.0 * T_scale - 20.0 if v_min is None else float(v_min)
         hi = params["V_p"] + 3.0 * T_scale if v_max is None else float(v_max)
@@ -107,7 +114,19 @@ def simulate(truth: dict | None = None, *, config: ModelConfig | None = None,
             raise ValueError(f"v_max ({hi}) must exceed v_min ({lo})")
         voltage = np.linspace(lo, hi, n_points)
     voltage = np.sort(np.asarray(voltage, float))
-    clean = probe_current(voltage, params, config)
+    branches = order = None
+    if both_directions:
+        up = voltage if user_grid else np.linspace(voltage[0], voltage[-1], (n_points + 1) // 2)
+        recorded = np.concatenate([up, up[::-1]])
+        branches = detect_branches(recorded)
+        if branches is None:
+            raise ValueError("both_directions needs at least 20 points per direction")
+        order = np.argsort(recorded, kind="stable")
+        voltage = recorded[order]
+        branches = (branches[0][order], branches[1][order])
+    elif config.hysteresis:
+        raise ValueError("the hysteresis switch needs a sweep in both directions: pass both_directions=True")
+    clean = probe_current(voltage, params, config, branches=branches)
     if noise_floor is None:
         I_ref = abs(float(probe_current(np.array([params["V_p"]]), params, config, distorted=False)[0]))
         noise_floor = 1e-3 * I_ref
@@ -127,8 +146,13 @@ def simulate(truth: dict | None = None, *, config: ModelConfig | None = None,
     truth_out["V_f"] = float(floating_potential(params, config))
     if config.distorted:
         truth_out["V_f_measured"] = float(measured_floating_potential(params, config))
-    sweep = Sweep(voltage, noisy, sweep_id=sweep_id, source="simulated",
-                  notes=["synthetic sweep drawn from the bayesprobe forward model"])
+    notes = ["synthetic sweep drawn from the bayesprobe forward model"]
+    if branches is not None:
+        notes.append("recorded with rising and then falling bias")
+    sweep = Sweep(voltage, noisy, sweep_id=sweep_id, source="simulated", notes=notes,
+                  direction=None if branches is None else branches[0],
+                  ramp=None if branches is None else branches[1],
+                  record_order=order)
     noise = {"noise_floor_A": float(noise_floor), "noise_rel": float(noise_rel),
              "outlier_fraction": float(outlier_fraction), "outlier_scale": float(outlier_scale),
              "n_outliers": n_out, "outlier_indices": outlier_indices, "seed": seed}

@@ -19,6 +19,10 @@ R_series      log-uniform 1e-5 .. 1 x     from negligible (I_max R = 1e-5 span) 
               span / I_max (ohm)          resistance that eats the whole sweep
 G_leak        normal(0, 0.1 I_max/span)   leakage is small next to the probe current;
 I_offset      normal(0, 0.1 I_max)        either sign (common practice, no source)
+V_shift       normal(0, 0.1 span)         either sign; contamination shifts are a few
+                                          volts at most (common practice, no source)
+I_cap         normal(0, 0.1 I_max)        either sign (depends on the wiring of the
+                                          sweep); small next to the probe current
 nu            gamma(shape 2, rate 0.1),   Juarez & Steel, J. Bus. Econ. Stat. 28, 52 (2010)
               truncated to 1 .. 1000      (from memory): mean 20, mode 10, allows heavy tails
 ============  =========================  ===============================================
@@ -59,6 +63,8 @@ _LABELS = {"n_e": (r"$n_e$", "m^-3", "electron density"),
            "R_series": (r"$R_s$", "ohm", "series (circuit) resistance"),
            "G_leak": (r"$G_{leak}$", "S", "leakage conductance"),
            "I_offset": (r"$I_0$", "A", "offset current"),
+           "V_shift": (r"$\Delta V_{h}$", "V", "voltage shift of the rising-bias branch vs the falling one"),
+           "I_cap": (r"$I_{cap}$", "A", "displacement current at the mean sweep rate"),
            "nu": (r"$\nu$", "1", "Student-t degrees of freedom (fitted)")}
 
 
@@ -81,6 +87,8 @@ def default_parameters(config: ModelConfig, voltage, current, *, fit_nu: bool = 
         "R_series": Prior("log-uniform", 1e-5 * span / i_max, span / i_max),
         "G_leak": Prior("normal", mean=0.0, sd=0.1 * i_max / span),
         "I_offset": Prior("normal", mean=0.0, sd=0.1 * i_max),
+        "V_shift": Prior("normal", mean=0.0, sd=0.1 * span),
+        "I_cap": Prior("normal", mean=0.0, sd=0.1 * i_max),
         "nu": NU_PRIOR,
     }
     names = list(plasma_parameter_names(config)) + list(distortion_parameter_names(config)) \
@@ -88,7 +96,7 @@ def default_parameters(config: ModelConfig, voltage, current, *, fit_nu: bool = 
     out = []
     for n in names:
         label, unit, desc = _LABELS[n]
-        transform = "identity" if n in ("V_p", "G_leak", "I_offset") else ("logit" if n == "hot_fraction" else "log")
+        transform = "identity" if n in ("V_p", "G_leak", "I_offset", "V_shift", "I_cap") else ("logit" if n == "hot_fraction" else "log")
         out.append(Parameter(n, unit, label, defaults[n], transform=transform, description=desc))
     return ParameterSet(out)
 
@@ -101,10 +109,14 @@ class LogPosterior:
     """
 
     def __init__(self, voltage, current, config: ModelConfig, parameters: ParameterSet, *,
-                 student_nu: float | None = None):
+                 student_nu: float | None = None, branches=None):
         self.voltage = np.asarray(voltage, float)
         self.current = np.asarray(current, float)
         self.config = config
+        if config.hysteresis and branches is None:
+            raise ValueError("the hysteresis distortion needs a sweep recorded with rising and falling bias "
+                             "(this one has a single direction)")
+        self.branches = branches if config.hysteresis else None
         self.parameters = parameters
         self.student_nu = student_nu
         self.n_points = self.voltage.size
@@ -124,7 +136,7 @@ class LogPosterior:
 
     def model_current(self, Z) -> np.ndarray:
         """Model current for every row of Z, shape (k, n)."""
-        return probe_current(self.voltage, self.physical(Z), self.config, validate=False)
+        return probe_current(self.voltage, self.physical(Z), self.config, validate=False, branches=self.branches)
 
     def _sigma(self, phys, mu):
         return np.sqrt(phys["sigma_floor"][:, None] ** 2 + (phys["sigma_rel"][:, None] * mu) ** 2)
@@ -137,7 +149,7 @@ class LogPosterior:
         Z = np.atleast_2d(Z)
         phys = self.physical(Z)
         if mu is None:
-            mu = probe_current(self.voltage, phys, self.config, validate=False)
+            mu = probe_current(self.voltage, phys, self.config, validate=False, branches=self.branches)
         sigma = self._sigma(phys, mu)
         r = (self.current - mu) / sigma
         if self.student_nu is None:
@@ -157,7 +169,7 @@ class LogPosterior:
         """
         Z = np.atleast_2d(Z)
         phys = self.physical(Z)
-        mu = probe_current(self.voltage, phys, self.config, validate=False)
+        mu = probe_current(self.voltage, phys, self.config, validate=False, branches=self.branches)
         r = (self.current - mu) / self._sigma(phys, mu)
         if self.student_nu is None:
             return np.ones_like(r)
@@ -189,7 +201,7 @@ class LogPosterior:
         Z = np.atleast_2d(Z)
         phys = self.physical(Z)
         if mu is None:
-            mu = probe_current(self.voltage, phys, self.config, validate=False)
+            mu = probe_current(self.voltage, phys, self.config, validate=False, branches=self.branches)
         sigma = self._sigma(phys, mu)
         if self.student_nu is None:
             eps = rng.standard_normal(mu.shape)
