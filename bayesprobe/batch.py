@@ -62,7 +62,9 @@ MAX_RECORD_BYTES = 16 << 20
 #: largest per-sweep settings table (bytes, rows)
 MAX_TABLE_BYTES, MAX_TABLE_ROWS = 16 << 20, 200_000
 #: the parameters reported in the tables (those present in any sweep)
-TABLE_PARAMETERS = ("T_e", "T_e_cold", "T_e_hot", "hot_fraction", "n_e", "n_i", "V_f", "V_p")
+TABLE_PARAMETERS = ("T_e", "T_e_cold", "T_e_hot", "hot_fraction", "n_e", "n_i", "V_f", "V_p",
+                    # distortion parameters, present only when that distortion is modelled
+                    "V_f_measured", "V_rf", "R_series", "G_leak", "I_offset", "V_shift", "I_cap")
 #: names recognised as the sweep-id column / array of a multi-sweep file
 SWEEP_ID_NAMES = ("sweep_id", "sweep", "sweep_no", "sweep_number", "sweep_index", "sweep_name", "sweepid")
 STATUSES = ("ok", "not-converged", "failed")
