@@ -65,8 +65,8 @@ from typing import Mapping
 import numpy as np
 
 from .physics.constants import ion_mass as _ion_mass
-from .physics.distortions import _rf_electron_current, _solve_series
-from .physics.electrons import _electron_current
+from .physics.distortions import _rf_electron_current, _rf_electron_current_with_slope, _solve_series
+from .physics.electrons import _electron_current, _electron_current_with_slope
 from .physics.geometry import Probe
 from .physics.ions import ION_THEORIES, _ion_current, bohm_factor as _bohm_factor
 
@@ -290,10 +290,11 @@ def probe_current(V, params: Mapping, config: ModelConfig, *, validate: bool = T
         shape = np.broadcast_shapes(V.shape, np.shape(R), *(np.shape(c) for c in cols.values()))
 
         def plasma_at(v, flat=None):
-            # flat: indices into the broadcast (k, n) grid, so the solver can iterate on a subset
+            # (current, slope); flat: indices into the broadcast (k, n) grid, so the solver can
+            # iterate on a subset
             if flat is None:
-                return _plasma_from_columns(v, cols, config)
-            return _plasma_from_columns(v, _subset(cols, shape, flat), config)
+                return _plasma_and_slope(v, cols, config)
+            return _plasma_and_slope(v, _subset(cols, shape, flat), config)
 
         I = _solve_series(plasma_at, V, R)
     else:
@@ -312,6 +313,30 @@ def _columns(params: Mapping, config: ModelConfig) -> dict:
     if config.rf_fluctuation:
         cols["V_rf"] = _column(params, "V_rf")
     return cols
+
+
+def _plasma_and_slope(V, cols: dict, config: ModelConfig, ion_step: float = 1e-5):
+    """Plasma characteristic and its slope dI/dV (A/V): analytic for the electrons, a forward
+    difference of ``ion_step`` volts for the (slowly varying) ion current."""
+    n_e, n_i, V_p = cols["n_e"], cols["n_i"], cols["V_p"]
+    V_rf = cols.get("V_rf") if config.rf_fluctuation else None
+    probe, sx = config.probe, config.electron_sheath_expansion
+    if config.electrons == "maxwellian":
+        T_e = cols["T_e"]
+        a = T_h = None
+        T_s = T_e
+    else:
+        T_e, T_h, a = cols["T_e_cold"], cols["T_e_hot"], cols["hot_fraction"]
+        T_s = 1.0 / ((1.0 - a) / T_e + a / T_h)
+    if V_rf is None:
+        I_e, dI_e = _electron_current_with_slope(V, V_p, n_e, T_e, probe, a, T_h, sx)
+    else:
+        I_e, dI_e = _rf_electron_current_with_slope(V, V_p, n_e, T_e, V_rf, probe, a, T_h, sx)
+    args = (n_i, T_s, probe, config.ion_mass_kg, config.ion_collection, n_e, config.T_i, config.bohm_factor,
+            config.sheath_expansion)
+    I_i = _ion_current(V, V_p, *args)
+    dI_i = (_ion_current(V + ion_step, V_p, *args) - I_i) / ion_step
+    return I_e - I_i, dI_e - dI_i
 
 
 def _subset(cols: dict, shape, flat) -> dict:

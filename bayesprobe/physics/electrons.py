@@ -93,6 +93,54 @@ def _attracted(chi, geometry, probe_radius=None, debye_length=None):
     return (1.0 + s / probe_radius) ** 2
 
 
+def _attracted_slope(chi, geometry, probe_radius=None, debye_length=None):
+    """d/dchi of :func:`_attracted` (0 where chi <= 0, the side the factor is flat on).
+
+    Cylinder: d/dchi [2 sqrt(chi/pi) + erfcx(sqrt chi)] = erfcx(sqrt chi), since
+    erfcx'(r) = 2 r erfcx(r) - 2/sqrt(pi). Planar Child-law sheath: 2 (1 + s/r_p) ds/dchi / r_p
+    with s proportional to chi^(3/4) (infinite slope at chi = 0+, where it is taken as 0).
+    """
+    chi = np.asarray(chi, float)
+    pos = chi > 0.0
+    if geometry == "spherical":
+        return pos.astype(float)
+    if geometry == "cylindrical":
+        out = np.zeros(chi.shape)
+        out[pos] = erfcx(np.sqrt(chi[pos]))
+        return out
+    if debye_length is None:
+        return np.zeros(chi.shape)
+    c = np.maximum(chi, 0.0)
+    q = np.sqrt(np.sqrt(c))                                   # chi^(1/4)
+    k = _ELECTRON_CHILD * debye_length / probe_radius
+    with np.errstate(divide="ignore", invalid="ignore"):
+        d = 2.0 * (1.0 + k * q * q * q) * 0.75 * k / q
+    return np.where(pos, d, 0.0)
+
+
+def _maxwellian_with_slope(V, V_p, n_e, T_e, probe, sheath_expansion):
+    """(current, dI/dV) of one Maxwellian population (unchecked; for the series-resistance solve)."""
+    x = (V - V_p) / T_e
+    lam = None
+    if sheath_expansion and probe.geometry == "planar":
+        lam = np.sqrt(EPS0 * T_e / (np.maximum(n_e, 1.0) * E_CHARGE))
+    I_es = _saturation(n_e, T_e, probe.area)
+    ex = np.exp(np.minimum(x, 0.0))
+    if probe.geometry == "planar" and lam is None:
+        return I_es * ex, np.where(x < 0.0, I_es * ex / T_e, 0.0)
+    value = I_es * (ex + _attracted(x, probe.geometry, probe.radius, lam) - 1.0)
+    slope = (I_es / T_e) * np.where(x < 0.0, ex, _attracted_slope(x, probe.geometry, probe.radius, lam))
+    return value, slope
+
+
+def _electron_current_with_slope(V, V_p, n_e, T_e, probe, hot_fraction=None, T_hot=None, sheath_expansion=False):
+    if hot_fraction is None:
+        return _maxwellian_with_slope(V, V_p, n_e, T_e, probe, sheath_expansion)
+    c, dc = _maxwellian_with_slope(V, V_p, (1.0 - hot_fraction) * n_e, T_e, probe, sheath_expansion)
+    h, dh = _maxwellian_with_slope(V, V_p, hot_fraction * n_e, T_hot, probe, sheath_expansion)
+    return c + h, dc + dh
+
+
 def _maxwellian(V, V_p, n_e, T_e, probe, sheath_expansion):
     x = (V - V_p) / T_e
     lam = None
