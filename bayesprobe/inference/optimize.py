@@ -32,6 +32,31 @@ def _bounds(logpost, d, margin):
     return lo + margin, hi - margin
 
 
+def _step_scale(logpost, z):
+    """Per-coordinate scale of the difference steps: max(|z|, 1), but at most the prior's own
+    width in z (its sd for a normal prior, else the bounded range).
+
+    Sampler coordinates are mostly O(1) (logs, volts), but an identity-transformed parameter in
+    SI units is not: a leakage conductance of ~1e-6 S with a prior sd of ~1e-5 S. A step of
+    1e-4 x max(|z|, 1) = 1e-4 S there spans the whole posterior and makes the curvature (and the
+    Laplace proposal built on it) meaningless.
+    """
+    z = np.asarray(z, float)
+    scale = np.maximum(np.abs(z), 1.0)
+    params = getattr(logpost, "parameters", None)
+    if params is None:
+        return scale
+    span = np.asarray(params.z_upper, float) - np.asarray(params.z_lower, float)
+    for i, p in enumerate(params):
+        prior = p.prior
+        width = span[i] if np.isfinite(span[i]) else np.inf
+        if prior.kind == "normal" and p.transform == "identity" or prior.kind == "log-normal" and p.transform == "log":
+            width = min(width, float(prior.sd))
+        if np.isfinite(width) and width > 0:
+            scale[i] = min(scale[i], width)
+    return scale
+
+
 def _value_and_gradient(logpost, z, h):
     """log-posterior and its central-difference gradient from one vectorised call of 2d+1 rows.
 
@@ -61,7 +86,7 @@ def _quasi_newton(logpost, z0, maxiter):
         s = 1.0 / np.sqrt(np.abs(np.diag(H0)))
     s = np.where(np.isfinite(s) & (s > 0), s, 0.1)
     s = np.minimum(s, 1.0)
-    h = 1e-6 * np.maximum(np.abs(z0), 1.0)
+    h = 1e-6 * _step_scale(logpost, z0)
     lo, hi = _bounds(logpost, d, 2 * h)
     n_eval = [n0]
 
@@ -172,7 +197,7 @@ def _hessian_and_gradient(logpost, z, *, rel_step: float = 1e-4):
     """
     z = np.asarray(z, float)
     d = z.size
-    h = rel_step * np.maximum(np.abs(z), 1.0)
+    h = rel_step * _step_scale(logpost, z)
     params = getattr(logpost, "parameters", None)
     if params is not None:
         # an optimum on (or next to) a prior bound: take the curvature a few steps inside it
