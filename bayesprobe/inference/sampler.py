@@ -91,7 +91,10 @@ def start_positions(logpost, center, cov, n, rng: np.random.Generator, scale: fl
     from scipy.stats import chi2
     d = center.size
     out = np.empty((0, d))
-    L = np.linalg.cholesky(cov + 1e-12 * np.eye(d))
+    # jitter relative to each variance: an absolute 1e-12 would be wider than the posterior of a
+    # parameter in SI units (a leakage conductance with sd ~1e-8 S)
+    cov = np.asarray(cov, float)
+    L = np.linalg.cholesky(cov + 1e-12 * np.diag(np.maximum(np.diag(cov), 1e-300)))
     lp0 = float(logpost(center[None, :])[0])
     allowed = 0.5 * chi2.ppf(0.999, d) * scale**2 + 1.0
     for attempt in range(60):
