@@ -90,6 +90,20 @@ def _distortion_choice(text):
         raise argparse.ArgumentTypeError(str(exc)) from None
 
 
+def _resistance_with_sd(text):
+    """``R0:dR`` in ohm (a measured circuit resistance and its uncertainty)."""
+    parts = text.replace("+-", ":").replace("\u00b1", ":").split(":")
+    try:
+        if len(parts) != 2:
+            raise ValueError
+        value, sd = float(parts[0]), float(parts[1])
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"must be OHMS:SD, e.g. 47:2 or 0:0.5, got {text!r}") from None
+    if not (math.isfinite(value) and value >= 0 and math.isfinite(sd) and sd > 0):
+        raise argparse.ArgumentTypeError(f"needs a resistance >= 0 and an uncertainty > 0 (ohm), got {text!r}")
+    return value, sd
+
+
 _positive_int = _int_at_least(1)
 _nonneg_int = _int_at_least(0)
 
@@ -160,6 +174,39 @@ def _add_fit_options(p):
     g.add_argument("--quiet", action="store_true", help="no progress bar or table")
 
 
+def _add_circuit_options(p):
+    g = p.add_argument_group(
+        "circuit calibration", "what is known about the measuring circuit; each turns the matching distortion on "
+        "(unless --distortions auto) with a prior from the measurement instead of the vague default")
+    g.add_argument("--circuit-resistance", type=_resistance_with_sd, metavar="OHMS:SD",
+                   help="measured resistance between bias source and probe surface and its uncertainty in ohm, "
+                        "e.g. 47:2 (normal prior on R_series, R >= 0); 0:SD says no resistance beyond SD")
+    g.add_argument("--vacuum-sweep", type=Path, metavar="FILE",
+                   help="the same bias sweep recorded with the plasma off (same columns and sign convention): "
+                        "its least-squares line sets normal priors on G_leak and I_offset")
+
+
+def _circuit_priors(args, sweep):
+    """Priors from --circuit-resistance / --vacuum-sweep and the distortions they switch on."""
+    from .inference.instrument_priors import circuit_resistance_prior, vacuum_leakage_priors
+    from .io import load_sweep
+    priors, needed = {}, []
+    if getattr(args, "circuit_resistance", None) is not None:
+        priors["R_series"] = circuit_resistance_prior(*args.circuit_resistance)
+        needed.append("resistance")
+    if getattr(args, "vacuum_sweep", None) is not None:
+        # a plasma-off sweep has no sign to detect: read it in the plasma sweep's convention
+        sign = "ion-positive" if sweep.sign_flipped else "electron-positive"
+        vac = load_sweep(args.vacuum_sweep, voltage_column=args.voltage_column,
+                         current_column=args.current_column, sign=sign)
+        try:
+            priors.update(vacuum_leakage_priors(vac.voltage, vac.current))
+        except ValueError as exc:
+            raise InputError(f"--vacuum-sweep {str(args.vacuum_sweep)!r}: {exc}") from None
+        needed.append("leakage")
+    return priors, needed
+
+
 def build_parser() -> argparse.ArgumentParser:
     from . import __version__
     p = _Parser(prog="bayesprobe", description="Bayesian analysis of electrostatic (Langmuir) probe I-V sweeps.")
@@ -176,6 +223,7 @@ def build_parser() -> argparse.ArgumentParser:
     f.add_argument("--out", type=Path, required=True, help="output folder (nothing is half-written there)")
     _add_physics_options(f)
     _add_fit_options(f)
+    _add_circuit_options(f)
 
     b = sub.add_parser(
         "batch", help="many sweeps (files, folders, multi-sweep files) -> one results table; resumable",
@@ -327,12 +375,22 @@ def cmd_fit(args) -> int:
         _say(args, f"note: {note}")
     config = _config_from(args)
     priors = _read_priors(args.priors)
+    measured, needed = _circuit_priors(args, sweep)
+    clash = sorted(set(measured) & set(priors or {}))
+    if clash:
+        raise InputError(f"prior for {', '.join(clash)} given twice (--priors and the circuit calibration); "
+                         f"drop one")
+    if measured:
+        priors = {**(priors or {}), **measured}
+    distortions = args.distortions
+    if needed and distortions != "auto":
+        distortions = tuple(distortions or ()) + tuple(n for n in needed if n not in (distortions or ()))
     settings = SamplerSettings(max_steps=max(args.max_steps, 100))
     try:
         result = fitting.fit(sweep, config=config, model=args.model, credible_level=args.credible_level,
                              priors=priors, student_nu=args.student_t, seed=args.seed, sampler=settings,
                              progress=None if not args.quiet else False, engine=args.engine,
-                             distortions=args.distortions)
+                             distortions=distortions)
     except ValueError as exc:          # bad prior values and the like: one line
         raise InputError(" ".join(str(exc).split())) from None
     write_fit_outputs(result, args.out, figures=not args.no_figures)

@@ -91,11 +91,22 @@ def distortion_starts(params, T0: float) -> list:
         base["V_rf"] = _inside(params["V_rf"], 0.05 * T0)
         extras.append({"V_rf": _inside(params["V_rf"], 1.0 * T0)})
     if "R_series" in names:
-        hi = params["R_series"].prior.upper or 1.0
-        base["R_series"] = _inside(params["R_series"], 1e-3 * hi)
-        extras.append({"R_series": _inside(params["R_series"], 0.05 * hi)})
+        prior = params["R_series"].prior
+        if prior.kind in ("normal", "log-normal"):      # a measured circuit resistance: start on it
+            if prior.kind == "normal":
+                base["R_series"] = prior.mean if prior.mean > 0 else prior.sd
+                extras.append({"R_series": base["R_series"] + 2 * prior.sd})
+            else:
+                base["R_series"] = float(np.exp(prior.mean))
+                extras.append({"R_series": float(np.exp(prior.mean + 2 * prior.sd))})
+        else:
+            hi = prior.upper or 1.0
+            base["R_series"] = _inside(params["R_series"], 1e-3 * hi)
+            extras.append({"R_series": _inside(params["R_series"], 0.05 * hi)})
     if "G_leak" in names:
-        base.update({"G_leak": 0.0, "I_offset": 0.0})
+        # the prior centre: 0 by default, the plasma-off line when one was measured
+        base.update({n: float(params[n].prior.mean) if params[n].prior.mean is not None else 0.0
+                     for n in ("G_leak", "I_offset")})
     if "V_shift" in names:
         base.update({"V_shift": 0.0, "I_cap": 0.0})
     if "nu" in names:

@@ -284,7 +284,12 @@ def fit(voltage, current=None, *, probe: Probe | None = None, ion="Ar", ion_mass
     credible_level : float
         Probability of the reported equal-tailed intervals.
     priors : dict, optional
-        ``{name: {"kind": ..., "lower": ..., "upper": ...}}`` overrides of the defaults.
+        ``{name: {"kind": ..., "lower": ..., "upper": ...}}`` (or ``{name: Prior}``) overrides of
+        the defaults. Calibration of the circuit distortions: a measured circuit resistance,
+        ``{"R_series": circuit_resistance_prior(R0, dR)}``, and the leakage line of a plasma-off
+        sweep, ``vacuum_leakage_priors(V_vac, I_vac)`` (both in
+        :mod:`bayesprobe.inference.instrument_priors`); with ``distortions="auto"`` each
+        candidate uses the overrides of the parameters it has.
     student_nu : float or "fit", optional
         Use a Student-t likelihood with this many degrees of freedom (outliers);
         ``"fit"`` makes the degrees of freedom a parameter ``nu`` and flags outliers.
@@ -342,8 +347,8 @@ def fit(voltage, current=None, *, probe: Probe | None = None, ion="Ar", ion_mass
     settings = sampler or SamplerSettings()
     if wanted == "auto":
         return select_distortions(
-            lambda cfg, nu: fit(sweep, config=cfg, model=model, credible_level=credible_level, priors=priors,
-                                student_nu=nu, seed=seed, sampler=settings, progress=progress, engine=engine,
+            lambda cfg, nu: fit(sweep, config=cfg, model=model, credible_level=credible_level,
+                                priors=_distortion_priors_for(priors, cfg, nu), student_nu=nu, seed=seed, sampler=settings, progress=progress, engine=engine,
                                 start=start),
             config, student_nu, both_directions=sweep.branches is not None)
     config, student_nu = apply_distortions(wanted, config, student_nu)
@@ -385,6 +390,19 @@ def _fit_models(sweep, config, *, model, settings, credible_level, priors, stude
         results["bi-maxwellian"] = full
         chosen = compare_models(results)
     return chosen
+
+
+def _distortion_priors_for(priors, config, student_nu):
+    """``auto``: each candidate keeps the prior overrides of the distortion parameters it has
+    (e.g. a measured circuit resistance applies to the resistance candidate only)."""
+    if not priors:
+        return priors
+    from .model import DISTORTION_SWITCHES
+    absent = {n for switch, names in DISTORTION_SWITCHES.items() if not getattr(config, switch)
+              for n in names}
+    if student_nu != "fit":
+        absent.add("nu")
+    return {k: v for k, v in priors.items() if k not in absent}
 
 
 def _priors_for(priors, kind):

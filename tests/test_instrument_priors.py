@@ -1,0 +1,108 @@
+"""Priors from circuit measurements: the plasma-off leakage line and a measured circuit resistance.
+
+Oracles: the least-squares line and its standard errors against scipy.stats.linregress (an
+independent implementation of ordinary least squares); the Student-t variance (n - 2)/(n - 4)
+of the scaled slope (textbook: the variance of Student-t with k degrees of freedom is k/(k - 2));
+coverage of the slope's +-1.645 sd interval over simulated vacuum sweeps against the binomial band.
+"""
+import json
+import subprocess
+import sys
+
+import numpy as np
+import pytest
+from scipy.stats import binom, linregress
+
+from bayesprobe.inference.instrument_priors import (circuit_resistance_prior, fit_vacuum_line,
+                                                    vacuum_leakage_priors)
+from bayesprobe.inference.parameters import Parameter
+
+
+def test_vacuum_line_matches_linregress():
+    rng = np.random.default_rng(11)
+    V = np.linspace(-45.0, 20.0, 300)
+    I = 2e-7 * V - 3e-6 + 4e-7 * rng.standard_normal(V.size)
+    line = fit_vacuum_line(V, I)
+    ref = linregress(V, I)
+    assert line.G == pytest.approx(ref.slope, rel=1e-10)
+    assert line.I_offset == pytest.approx(ref.intercept, rel=1e-10)
+    assert line.sd_G == pytest.approx(ref.stderr, rel=1e-10)
+    assert line.sd_I_offset == pytest.approx(ref.intercept_stderr, rel=1e-10)
+    priors = vacuum_leakage_priors(V, I)
+    k = V.size - 2
+    assert priors["G_leak"].kind == "normal" and priors["G_leak"].mean == pytest.approx(ref.slope)
+    assert priors["G_leak"].sd == pytest.approx(ref.stderr * np.sqrt(k / (k - 2)), rel=1e-10)
+    assert priors["I_offset"].sd == pytest.approx(ref.intercept_stderr * np.sqrt(k / (k - 2)), rel=1e-10)
+
+
+def test_vacuum_line_interval_coverage():
+    """The 90 % interval G +- 1.645 sd(prior) covers the true conductance in Binomial(200, 0.9) of 200 sweeps."""
+    rng = np.random.default_rng(12)
+    V = np.linspace(-30.0, 10.0, 40)
+    hits = 0
+    for _ in range(200):
+        I = 1e-6 * V + 5e-6 + 2e-6 * rng.standard_normal(V.size)
+        p = vacuum_leakage_priors(V, I)["G_leak"]
+        hits += abs(p.mean - 1e-6) <= 1.645 * p.sd
+    lo, hi = binom.ppf(0.005, 200, 0.9), binom.ppf(0.995, 200, 0.9)
+    assert lo <= hits <= hi, hits
+
+
+def test_vacuum_line_rejects_unusable_input():
+    with pytest.raises(ValueError, match="at least 5"):
+        fit_vacuum_line([1, 2, 3], [0, 0, 0])
+    with pytest.raises(ValueError, match="does not vary"):
+        fit_vacuum_line(np.ones(10), np.arange(10.0))
+    with pytest.raises(ValueError, match="no noise"):
+        vacuum_leakage_priors(np.arange(10.0), 2 * np.arange(10.0))
+
+
+def test_circuit_resistance_prior_is_a_half_normal_at_zero():
+    """R = 0 +- s: in ln R the density is proportional to R exp(-R^2 / 2 s^2) (normal times the Jacobian R);
+    its mode in ln R is at R = s (common practice, no source: change of variables)."""
+    prior = circuit_resistance_prior(0.0, 2.0)
+    p = Parameter("R_series", "ohm", "R", prior, transform="log")
+    z = np.log(np.array([0.5, 2.0, 8.0]))
+    lp = p.log_prior_z(z)
+    R = np.exp(z)
+    expected = np.log(R) - R ** 2 / 8.0
+    assert np.allclose(lp - lp[1], expected - expected[1])
+    assert lp[1] > lp[0] and lp[1] > lp[2]
+    for bad in ((-1.0, 1.0), (1.0, 0.0), (np.nan, 1.0)):
+        with pytest.raises(ValueError):
+            circuit_resistance_prior(*bad)
+
+
+def run_cli(*args):
+    p = subprocess.run([sys.executable, "-m", "bayesprobe", *map(str, args)], capture_output=True, text=True,
+                       timeout=600)
+    return p.returncode, p.stdout, p.stderr
+
+
+def test_cli_calibration_options_set_priors(tmp_path):
+    """--vacuum-sweep and --circuit-resistance switch the distortions on and record the measured priors
+    (a short step budget: the test is about the plumbing, so exit 3, not converged, is accepted)."""
+    import bayesprobe as bp
+    cfg = bp.ModelConfig(probe=bp.Probe("planar", radius=2e-3), ion="Ar", ion_collection="thin-sheath")
+    sim = bp.simulate({"n_e": 1e16, "T_e": 3.0, "V_p": 8.0}, config=cfg, n_points=200, seed=3)
+    V = sim.sweep.voltage
+    sweep = tmp_path / "s.csv"
+    sweep.write_text("voltage_V,current_A\n" + "\n".join(f"{float(v)!r},{float(i)!r}" for v, i in zip(V, sim.sweep.current)))
+    rng = np.random.default_rng(5)
+    vac = tmp_path / "vac.csv"
+    I_vac = 1e-7 * V + 2e-6 + 1e-6 * rng.standard_normal(V.size)
+    vac.write_text("voltage_V,current_A\n" + "\n".join(f"{float(v)!r},{float(i)!r}" for v, i in zip(V, I_vac)))
+    out = tmp_path / "res"
+    code, _, err = run_cli("fit", sweep, "--out", out, "--geometry", "planar", "--radius", "2mm",
+                           "--ion-collection", "thin-sheath", "--quasi-neutral", "--engine", "fast",
+                           "--vacuum-sweep", vac, "--circuit-resistance", "0:0.2", "--no-figures", "--quiet",
+                           "--max-steps", "200")
+    assert code in (0, 3), err
+    s = json.loads((out / "summary.json").read_text())
+    ref = linregress(V, I_vac)
+    assert s["priors"]["G_leak"]["prior"]["mean"] == pytest.approx(ref.slope)
+    assert s["priors"]["I_offset"]["prior"]["mean"] == pytest.approx(ref.intercept)
+    assert s["priors"]["R_series"]["prior"] == {"kind": "normal", "lower": 0.0, "mean": 0.0, "sd": 0.2}
+    assert set(s["distortions"]["enabled"]) == {"resistance", "leakage"}
+    code, _, err = run_cli("fit", sweep, "--out", tmp_path / "bad", "--circuit-resistance", "47")
+    assert code == 2 and "OHMS:SD" in err
