@@ -9,11 +9,16 @@ Oracles:
   outliers do not bias the plain fit (its fitted noise level grows instead), so for ``outliers`` the
   control is efficiency: the Student-t fit gives the narrower T_e interval in most sweeps.
 * Clean sweeps: switching a distortion on when the data have none widens the 90 % T_e interval by
-  at most 25 % (the issue's requirement) on every sweep. Met for rf and outliers; NOT met for
-  resistance and leakage (strict xfail below, with the measured ratios).
+  at most 25 % (the issue's requirement) on every sweep. With the default (vague) priors this is met
+  for rf and outliers and NOT met for resistance and leakage (strict xfail below, with the measured
+  ratios); it is met for both when the circuit is calibrated (a measured circuit resistance, a
+  plasma-off sweep for the leakage line: bayesprobe.inference.instrument_priors).
+* Information loss, not sampler noise: on a clean sweep the leakage widening equals the Cramer-Rao
+  ratio (tests/distortion_information.py) within the Monte-Carlo error of two interval widths.
 
 The always-run tests use a handful of sweeps (the binomial band is then loose: a smoke test); the
-``slow`` tests use 40 sweeps per distortion. Sweeps: tests/distortion_cases.py.
+``slow`` tests use 40 sweeps per distortion (10 for the clean-sweep widths). Sweeps:
+tests/distortion_cases.py.
 """
 import numpy as np
 import pytest
@@ -35,8 +40,8 @@ def width(entry, name="T_e"):
     return hi - lo
 
 
-def check_kind(kind, indices):
-    results = [run_case(kind, i) for i in indices]
+def check_kind(kind, indices, calibrated=False):
+    results = [run_case(kind, i, calibrated=calibrated) for i in indices]
     n = len(results)
     cover = {q: sum(covers(r["aware"], q, r["truth"]) for r in results) for q in COVERED}
     converged = sum(r["aware"]["converged"] for r in results)
@@ -57,12 +62,13 @@ def check_kind(kind, indices):
     return results
 
 
-def check_clean(kind, indices):
+def check_clean(kind, indices, calibrated=False):
     ratios = []
     for i in indices:
-        r = run_case(kind, i, clean=True)
+        r = run_case(kind, i, clean=True, calibrated=calibrated)
         ratios.append(width(r["aware"]) / width(r["plain"]))
-    print(kind, "clean-sweep T_e interval width ratio aware/plain", np.round(ratios, 3))
+    print(kind, "calibrated" if calibrated else "default priors",
+          "clean-sweep T_e interval width ratio aware/plain", np.round(ratios, 3))
     assert max(ratios) <= 1.25, (kind, ratios)
     return ratios
 
@@ -88,11 +94,19 @@ def test_distortion_forty_sweeps(kind):
     check_kind(kind, range(100, 140))
 
 
-#: measured on sweeps 200-209 (see the issue report): the T_e interval widens by up to 69 % with a
-#: series resistance and 24-38 % with leakage + offset, because both take over part of the information
-#: the knee (resistance) and the ion branch (leakage) carry about T_e. The requirement is not met for
-#: these two with the present priors; strict xfail keeps that visible and fails if it silently changes.
-_WIDENS = pytest.mark.xfail(strict=True, reason="requirement not met: interval widens by more than 25 %")
+#: measured on sweeps 200-209 with the default priors: the T_e interval widens by 4-69 % with a series
+#: resistance and 24-38 % with leakage + offset. Diagnosis (tests/distortion_information.py and the
+#: report of this change): T_e information sits in the transition region V_f..V_p (dropping it
+#: inflates the T_e sd 2-50x; dropping the ion branch 1.0-2.2x). Resistance: R makes the local
+#: log-slope 1/(T_e + I R), Cramer-Rao correlation of ln T_e with R -0.91; the data bound R only from
+#: above (posterior 95 % quantile 0.7-2.2 % of T_e/I_es), so the widening is set by the prior mass just
+#: below that bound (seed-to-seed spread of the ratio ~4 %: not sampler noise). Leakage: the posterior
+#: sd of G and I_0 is 0.3-4 % of the prior sd, and the widening matches the Cramer-Rao ratio
+#: (1.20-1.33); a default prior as tight as 0.1 I_is would still leave 1.20-1.32. Both are information
+#: the sweep does not hold; the calibrated route below meets the requirement. Strict xfail keeps the
+#: default-prior result visible and fails if it silently changes.
+_WIDENS = pytest.mark.xfail(strict=True, reason="vague priors: interval widens by more than 25 % (information "
+                                                "loss; see the calibrated tests)")
 
 
 @pytest.mark.slow
@@ -100,3 +114,38 @@ _WIDENS = pytest.mark.xfail(strict=True, reason="requirement not met: interval w
                                   for k in KINDS])
 def test_clean_sweeps_ten(kind):
     check_clean(kind, range(200, 210))
+
+
+def test_leakage_widening_is_cramer_rao():
+    """On clean sweep 200 the default-prior leakage widening is the Cramer-Rao ratio (information the sweep
+    does not hold), not sampling noise. Tolerance: a 90 % width from ESS >= 1000 draws has relative sd
+    about 0.91/sqrt(ESS) (asymptotic sd of a sample quantile, sqrt(q(1-q)/n)/f(x_q), for a normal
+    posterior, both ends); a ratio of two such widths 4.1 %; we allow 3 of those, plus the sampled ratio
+    must exceed 1 by more than 3 of those (negative control: no widening at all)."""
+    from distortion_information import cramer_rao
+    r = run_case("leakage", 200, clean=True)
+    sampled = width(r["aware"]) / width(r["plain"])
+    predicted = cramer_rao("leakage", 200)["ratio_free"]
+    tol = 3 * np.sqrt(2) * 0.91 / np.sqrt(1000)
+    print("leakage 200: sampled ratio", round(sampled, 3), "Cramer-Rao", round(predicted, 3))
+    assert abs(sampled / predicted - 1) <= tol
+    assert sampled > 1 + tol
+
+
+def test_clean_sweep_calibrated_leakage_small_set():
+    check_clean("leakage", range(1), calibrated=True)
+
+
+@pytest.mark.slow
+@pytest.mark.parametrize("kind", ["resistance", "leakage"])
+def test_clean_sweeps_ten_calibrated(kind):
+    """The requirement, met with calibration: a measured circuit resistance (0 +- 0.5 % of T_e/I_es on a
+    clean sweep) or the leakage line of a plasma-off sweep (tests/distortion_cases.py)."""
+    check_clean(kind, range(200, 210), calibrated=True)
+
+
+@pytest.mark.slow
+@pytest.mark.parametrize("kind", ["resistance", "leakage"])
+def test_distortion_forty_sweeps_calibrated(kind):
+    """Calibrated priors keep the aware model calibrated on the distorted set (and the plain model biased)."""
+    check_kind(kind, range(100, 140), calibrated=True)

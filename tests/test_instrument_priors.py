@@ -6,13 +6,12 @@ of the scaled slope (textbook: the variance of Student-t with k degrees of freed
 coverage of the slope's +-1.645 sd interval over simulated vacuum sweeps against the binomial band.
 """
 import json
-import subprocess
-import sys
 
 import numpy as np
 import pytest
 from scipy.stats import binom, linregress
 
+from bayesprobe.cli import main
 from bayesprobe.inference.instrument_priors import (circuit_resistance_prior, fit_vacuum_line,
                                                     vacuum_leakage_priors)
 from bayesprobe.inference.parameters import Parameter
@@ -73,18 +72,12 @@ def test_circuit_resistance_prior_is_a_half_normal_at_zero():
             circuit_resistance_prior(*bad)
 
 
-def run_cli(*args):
-    p = subprocess.run([sys.executable, "-m", "bayesprobe", *map(str, args)], capture_output=True, text=True,
-                       timeout=600)
-    return p.returncode, p.stdout, p.stderr
-
-
-def test_cli_calibration_options_set_priors(tmp_path):
+def test_cli_calibration_options_set_priors(tmp_path, capsys):
     """--vacuum-sweep and --circuit-resistance switch the distortions on and record the measured priors
     (a short step budget: the test is about the plumbing, so exit 3, not converged, is accepted)."""
     import bayesprobe as bp
     cfg = bp.ModelConfig(probe=bp.Probe("planar", radius=2e-3), ion="Ar", ion_collection="thin-sheath")
-    sim = bp.simulate({"n_e": 1e16, "T_e": 3.0, "V_p": 8.0}, config=cfg, n_points=200, seed=3)
+    sim = bp.simulate({"n_e": 1e16, "T_e": 3.0, "V_p": 8.0}, config=cfg, n_points=100, seed=3)
     V = sim.sweep.voltage
     sweep = tmp_path / "s.csv"
     sweep.write_text("voltage_V,current_A\n" + "\n".join(f"{float(v)!r},{float(i)!r}" for v, i in zip(V, sim.sweep.current)))
@@ -93,16 +86,17 @@ def test_cli_calibration_options_set_priors(tmp_path):
     I_vac = 1e-7 * V + 2e-6 + 1e-6 * rng.standard_normal(V.size)
     vac.write_text("voltage_V,current_A\n" + "\n".join(f"{float(v)!r},{float(i)!r}" for v, i in zip(V, I_vac)))
     out = tmp_path / "res"
-    code, _, err = run_cli("fit", sweep, "--out", out, "--geometry", "planar", "--radius", "2mm",
-                           "--ion-collection", "thin-sheath", "--quasi-neutral", "--engine", "fast",
-                           "--vacuum-sweep", vac, "--circuit-resistance", "0:0.2", "--no-figures", "--quiet",
-                           "--max-steps", "200")
-    assert code in (0, 3), err
+    code = main(["fit", str(sweep), "--out", str(out), "--geometry", "planar", "--radius", "2mm",
+                 "--ion-collection", "thin-sheath", "--quasi-neutral", "--engine", "fast",
+                 "--vacuum-sweep", str(vac), "--circuit-resistance", "0:0.2", "--no-figures", "--quiet",
+                 "--max-steps", "100"])
+    assert code in (0, 3), capsys.readouterr().err
     s = json.loads((out / "summary.json").read_text())
     ref = linregress(V, I_vac)
     assert s["priors"]["G_leak"]["prior"]["mean"] == pytest.approx(ref.slope)
     assert s["priors"]["I_offset"]["prior"]["mean"] == pytest.approx(ref.intercept)
     assert s["priors"]["R_series"]["prior"] == {"kind": "normal", "lower": 0.0, "mean": 0.0, "sd": 0.2}
     assert set(s["distortions"]["enabled"]) == {"resistance", "leakage"}
-    code, _, err = run_cli("fit", sweep, "--out", tmp_path / "bad", "--circuit-resistance", "47")
-    assert code == 2 and "OHMS:SD" in err
+    capsys.readouterr()
+    code = main(["fit", str(sweep), "--out", str(tmp_path / "bad"), "--circuit-resistance", "47"])
+    assert code == 2 and "OHMS:SD" in capsys.readouterr().err
