@@ -27,6 +27,32 @@ nu            gamma(shape 2, rate 0.1),   Juarez & Steel, J. Bus. Econ. Stat. 28
               truncated to 1 .. 1000      (from memory): mean 20, mode 10, allows heavy tails
 ============  =========================  ===============================================
 
+Calibrated circuit (the override for ``fit(..., priors=...)``, or the ``fit`` command's
+``--circuit-resistance`` and ``--vacuum-sweep``; helpers and sources in
+:mod:`bayesprobe.inference.instrument_priors`):
+
+============  =========================  ===============================================
+parameter     prior                      from
+============  =========================  ===============================================
+R_series      normal(R0, dR), R >= 0      a measured circuit resistance R0 +- dR (ohm);
+                                          "0 +- dR": no resistance beyond dR
+G_leak,       normal(line fit, its sd)    least-squares line through a plasma-off sweep
+I_offset                                  (sd scaled to the Student-t variance)
+============  =========================  ===============================================
+
+Why the defaults stay vague and the calibration exists: on clean sweeps neither a series
+resistance nor a leakage line can be told apart from T_e by the sweep itself. The T_e
+information sits in the transition region V_f .. V_p; R changes its local log-slope to
+1/(T_e + I R) (Cramer-Rao correlation of ln T_e with R: -0.91) and the data only bound R
+from above (at about 1-2 % of the sheath resistance T_e/I_es), so the widening of the T_e
+interval depends on the prior mass just below that bound (measured 4-69 % with the default
+prior on the test sweeps). The leakage line's posterior is set by the data (its sd is
+0.3-4 % of the default prior sd) and the widening is the Cramer-Rao ratio, 20-33 %; even a
+prior as tight as 0.1 I_is would leave 20-32 %, and would exclude real leakage of a good
+fraction of I_is, which the distortion is there to catch. With the circuit measured (R
+known to about 0.5 % of T_e/I_es, or a plasma-off sweep) the widening on the test sweeps is
+4-15 % and 0-10 % (tests/test_distortions_calibration.py, tests/distortion_information.py).
+
 Outliers: under the Student-t model each point has a latent precision weight whose
 posterior mean given the parameters is (nu + 1)/(nu + r^2), r the standardised
 residual (the scale-mixture representation of the t distribution; e.g. Lange, Little
