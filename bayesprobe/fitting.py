@@ -348,8 +348,8 @@ def fit(voltage, current=None, *, probe: Probe | None = None, ion="Ar", ion_mass
     if wanted == "auto":
         return select_distortions(
             lambda cfg, nu: fit(sweep, config=cfg, model=model, credible_level=credible_level,
-                                priors=_distortion_priors_for(priors, cfg, nu), student_nu=nu, seed=seed, sampler=settings, progress=progress, engine=engine,
-                                start=start),
+                                priors=_distortion_priors_for(priors, cfg, nu), student_nu=nu, seed=seed,
+                                sampler=settings, progress=progress, engine=engine, start=start),
             config, student_nu, both_directions=sweep.branches is not None)
     config, student_nu = apply_distortions(wanted, config, student_nu)
     if config.hysteresis and sweep.branches is None:

@@ -101,7 +101,7 @@ def test_distortion_forty_sweeps(kind):
 #: log-slope 1/(T_e + I R), Cramer-Rao correlation of ln T_e with R -0.91; the data bound R only from
 #: above (posterior 95 % quantile 0.7-2.2 % of T_e/I_es), so the widening is set by the prior mass just
 #: below that bound (seed-to-seed spread of the ratio ~4 %: not sampler noise). Leakage: the posterior
-#: sd of G and I_0 is 0.3-4 % of the prior sd, and the widening matches the Cramer-Rao ratio
+#: sd of G and I_0 is 0.2-0.5 % of the prior sd, and the widening matches the Cramer-Rao ratio
 #: (1.20-1.33); a default prior as tight as 0.1 I_is would still leave 1.20-1.32. Both are information
 #: the sweep does not hold; the calibrated route below meets the requirement. Strict xfail keeps the
 #: default-prior result visible and fails if it silently changes.

@@ -100,3 +100,16 @@ def test_cli_calibration_options_set_priors(tmp_path, capsys):
     capsys.readouterr()
     code = main(["fit", str(sweep), "--out", str(tmp_path / "bad"), "--circuit-resistance", "47"])
     assert code == 2 and "OHMS:SD" in capsys.readouterr().err
+
+
+def test_auto_candidates_keep_only_their_calibrated_priors():
+    """distortions="auto": the resistance candidate gets the R_series prior, the plain and leakage
+    candidates do not (they have no such parameter); other overrides pass through."""
+    import bayesprobe as bp
+    from bayesprobe.fitting import _distortion_priors_for
+    priors = {"R_series": circuit_resistance_prior(10.0, 1.0), "T_e": {"kind": "log-uniform", "lower": 0.5,
+                                                                         "upper": 20.0}}
+    plain = bp.ModelConfig()
+    assert set(_distortion_priors_for(priors, plain, None)) == {"T_e"}
+    assert set(_distortion_priors_for(priors, plain.with_(series_resistance=True), None)) == {"R_series", "T_e"}
+    assert set(_distortion_priors_for(priors, plain.with_(leakage=True), None)) == {"T_e"}

@@ -12,7 +12,7 @@ neither, because the sweep itself cannot tell them apart from T_e:
   below that bound (tests/test_distortions_calibration.py).
 * a leakage line G V + I_0 competes with the ion current that is subtracted in the
   transition region and with the sheath-expansion slope of the ion branch. The posterior
-  of G and I_0 is set by the data (its sd is 0.3-4 % of the prior sd), so the widening
+  of G and I_0 is set by the data (its sd is 0.2-0.5 % of the prior sd), so the widening
   (Cramer-Rao ratio 1.20-1.33, sampled 1.24-1.38) does not depend on how wide the
   default prior is: it is information the sweep does not hold.
 

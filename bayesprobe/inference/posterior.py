@@ -47,7 +47,7 @@ information sits in the transition region V_f .. V_p; R changes its local log-sl
 from above (at about 1-2 % of the sheath resistance T_e/I_es), so the widening of the T_e
 interval depends on the prior mass just below that bound (measured 4-69 % with the default
 prior on the test sweeps). The leakage line's posterior is set by the data (its sd is
-0.3-4 % of the default prior sd) and the widening is the Cramer-Rao ratio, 20-33 %; even a
+0.2-0.5 % of the default prior sd) and the widening is the Cramer-Rao ratio, 20-33 %; even a
 prior as tight as 0.1 I_is would leave 20-32 %, and would exclude real leakage of a good
 fraction of I_is, which the distortion is there to catch. With the circuit measured (R
 known to about 0.5 % of T_e/I_es, or a plasma-off sweep) the widening on the test sweeps is
