@@ -140,12 +140,15 @@ def test_clean_sweep_calibrated_leakage_small_set():
 @pytest.mark.parametrize("kind", ["resistance", "leakage"])
 def test_clean_sweeps_ten_calibrated(kind):
     """The requirement, met with calibration: a measured circuit resistance (0 +- 0.5 % of T_e/I_es on a
-    clean sweep) or the leakage line of a plasma-off sweep (tests/distortion_cases.py)."""
+    clean sweep) or the leakage line of a plasma-off sweep (tests/distortion_cases.py). Measured: ratios
+    1.04-1.15 (resistance) and 1.00-1.10 (leakage)."""
     check_clean(kind, range(200, 210), calibrated=True)
 
 
 @pytest.mark.slow
 @pytest.mark.parametrize("kind", ["resistance", "leakage"])
 def test_distortion_forty_sweeps_calibrated(kind):
-    """Calibrated priors keep the aware model calibrated on the distorted set (and the plain model biased)."""
+    """Calibrated priors keep the aware model calibrated on the distorted set (and the plain model biased).
+    Measured: resistance T_e 37/40, n_e 35/40 (plain misses T_e in 40/40); leakage T_e 35/40, n_e 36/40
+    (plain misses 33/40); band [31, 40]."""
     check_kind(kind, range(100, 140), calibrated=True)
