@@ -150,5 +150,5 @@ def test_clean_sweeps_ten_calibrated(kind):
 def test_distortion_forty_sweeps_calibrated(kind):
     """Calibrated priors keep the aware model calibrated on the distorted set (and the plain model biased).
     Measured: resistance T_e 37/40, n_e 35/40 (plain misses T_e in 40/40); leakage T_e 35/40, n_e 36/40
-    (plain misses 33/40); band [31, 40]."""
+    (plain misses 33/40); band [30, 40]."""
     check_kind(kind, range(100, 140), calibrated=True)
