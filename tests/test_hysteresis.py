@@ -92,6 +92,22 @@ def test_shift_is_a_pure_voltage_shift_and_zero_terms_are_plain():
                           bp.probe_current(V, p, cfg))
 
 
+def test_shift_acts_at_the_sheath_and_leakage_at_the_applied_bias():
+    """With series resistance, RF and leakage on, the rising branch is the distorted model at V - d/2 except
+    for the leakage line, which sees the applied bias (the composition stated in bayesprobe.model)."""
+    cfg = _plain().with_(series_resistance=True, rf_fluctuation=True, leakage=True)
+    V = np.linspace(-40, 20, 300)
+    p = {"n_e": np.array([1e16, 2e16]), "T_e": np.array([3.0, 2.0]), "V_p": np.array([10.0, 9.0]),
+         "R_series": np.array([50.0, 100.0]), "V_rf": np.array([1.0, 2.0]), "G_leak": np.array([1e-6, 0.0]),
+         "I_offset": np.array([1e-6, 0.0])}
+    d = 1.3
+    up = (np.ones(V.size), np.zeros(V.size))
+    got = bp.probe_current(V, p | {"V_shift": np.full(2, d), "I_cap": np.zeros(2)}, cfg.with_(hysteresis=True),
+                           branches=up)
+    expect = bp.probe_current(V - d / 2, p, cfg) + p["G_leak"][:, None] * d / 2
+    assert np.allclose(got, expect, rtol=1e-12, atol=1e-18)
+
+
 def test_displacement_current_is_C_dV_dt():
     """A 100 pF stray capacitance under a 1 kHz, 20 V sinusoidal sweep: I = C dV/dt (circuit theory)."""
     cfg = _plain()
