@@ -142,7 +142,8 @@ class LogPosterior:
         if config.hysteresis and branches is None:
             raise ValueError("the hysteresis distortion needs a sweep recorded with rising and falling bias "
                              "(this one has a single direction)")
-        self.branches = branches if config.hysteresis else None
+        # float copies once, not at every call on the sampler's hot path
+        self.branches = tuple(np.asarray(b, float) for b in branches) if config.hysteresis else None
         self.parameters = parameters
         self.student_nu = student_nu
         self.n_points = self.voltage.size
