@@ -22,6 +22,7 @@ import numpy as np
 
 from .comparison import ELPD_MIN, SE_MULTIPLE, loo_difference, richer_supported
 from .model import DISTORTION_SWITCHES, distortion_parameter_names
+from .result import summarise_draws
 
 __all__ = ["DISTORTIONS", "parse_distortions", "apply_distortions", "enabled_distortions",
            "describe_distortions", "select_distortions", "OUTLIER_WEIGHT"]
@@ -160,9 +161,9 @@ def describe_distortions(logpost, Z, phys, voltage, counts=None, credible_level=
 
 
 def _hysteresis_record(phys, level):
-    q = [(1 - level) / 2, 0.5, (1 + level) / 2]
-    dv = np.quantile(phys["V_shift"], q)
-    ic = np.quantile(phys["I_cap"], q)
+    # the same interval rule as every other summary entry
+    dv, ic = ([e["ci_low"], e["median"], e["ci_high"]] for e in
+              (summarise_draws(phys[n], level) for n in ("V_shift", "I_cap")))
     pct = f"{100 * level:g} %"
     note = (f"Rising- and falling-bias branches are shifted by V_shift = {dv[1]:.3g} V ({pct} interval "
             f"{dv[0]:.3g} to {dv[2]:.3g} V; positive: the rising branch sits at higher bias); displacement "
