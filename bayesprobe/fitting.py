@@ -116,6 +116,28 @@ def _warm_start_z(params, start):
     return z if np.all(np.isfinite(z)) else None
 
 
+def _plain_seeded_starts(sweep, config, priors, student_nu, cls, params):
+    """Starts in z for a distorted model: the plain model's MAP with each set of distortion starts."""
+    plain = config.undistorted()
+    V, I = sweep.voltage, sweep.current
+    nu = None if student_nu == "fit" else student_nu
+    keep = set(default_parameters(plain, V, I).names)
+    p_plain = default_parameters(plain, V, I).with_priors({k: v for k, v in (priors or {}).items() if k in keep})
+    lp_plain = LogPosterior(V, I, plain, p_plain, student_nu=nu)
+    mp = find_map(lp_plain, _starts(p_plain, cls, V, I, plain))
+    values = {n: float(v[0]) for n, v in p_plain.to_physical(mp.z[None, :]).items()}
+    T0 = values.get("T_e", values.get("T_e_cold", 2.0))
+    sets = distortion_starts(params, T0)
+    out = []
+    for extra in sets:
+        v = dict(values)
+        v.update(sets[0])
+        v.update(extra)
+        v.setdefault("nu", 10.0)
+        out.append(params.to_z({n: v[n] for n in params.names}))
+    return np.array(out)
+
+
 def _fit_one(sweep: Sweep, config: ModelConfig, *, credible_level, priors, student_nu, seed, settings,
              progress, cls, engine="mcmc", is_settings=None, start=None) -> FitResult:
     V, I = sweep.voltage, sweep.current
@@ -124,6 +146,11 @@ def _fit_one(sweep: Sweep, config: ModelConfig, *, credible_level, priors, stude
     t0 = time.perf_counter()
     starts = _starts(params, cls, V, I, config)
     z_warm = _warm_start_z(params, start)
+    if z_warm is None and config.distorted:
+        # distortions perturb the plain characteristic: its optimum (cheap and well posed) with the
+        # distortion starts joins the candidates (a far start can settle in a spurious mode with a
+        # large V_rf and V_p above the sweep)
+        starts = np.vstack([_plain_seeded_starts(sweep, config, priors, student_nu, cls, params), starts])
     if z_warm is not None:
         # the neighbour's optimum joins the candidates; the local search runs from the best one only
         starts = np.vstack([z_warm[None, :], starts])

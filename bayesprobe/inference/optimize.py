@@ -73,15 +73,91 @@ def _value_and_gradient(logpost, z, h):
     return f0, g
 
 
-def _quasi_newton(logpost, z0, maxiter):
+def _fisher_scoring(logpost, z0, *, maxiter: int = 100, ftol: float = 1e-4, free=None):
+    """Levenberg-Marquardt-damped Fisher scoring on the log-posterior, inside the prior box.
+
+    Each iteration takes the gradient g and the expected information A (likelihood
+    information plus prior curvature, :meth:`LogPosterior.score_and_information`; one
+    vectorised call of 2d+1 rows) and tries the step (A + lambda diag A)^-1 g (Levenberg 1944;
+    Marquardt 1963), raising the damping lambda tenfold until the step climbs (one row per
+    try) and lowering it after a success. Unlike a diagonal rescaling, the step is invariant
+    to linear changes of coordinates, so strongly correlated parameters (a series resistance
+    against T_e: correlation -0.9) cost no extra iterations. The damping follows the ratio rho
+    of the actual to the predicted gain (Nielsen's rule, H. B. Nielsen, "Damping parameter in
+    Marquardt's method", IMM-REP-1999-05, DTU; from memory): lambda *= max(1/3, 1 - (2 rho - 1)^3)
+    after a climbing step, doubling growth after a failed one; it starts at 1, so the first
+    steps from a poor start are short. Stops when an accepted step gains less than ``ftol``
+    in log-posterior. Returns (z, log-posterior, information, rows
+    evaluated); (z0, None, None, rows) when the log-posterior has no information method.
+    """
+    info = getattr(logpost, "score_and_information", None)
+    d = z0.size
+    if info is None:
+        return z0, None, None, 0
+    h = 1e-6 * _step_scale(logpost, z0)
+    lo, hi = _bounds(logpost, d, 2 * h)
+    z = np.clip(np.asarray(z0, float), lo, hi)
+    out = info(z, h)
+    n_eval = 2 * d + 1
+    if out is None:
+        return z0, None, None, n_eval
+    f, g, A = out
+    free = np.ones(d, bool) if free is None else np.asarray(free, bool)
+    lam, grow = 1.0, 2.0
+    for _ in range(maxiter):
+        scale = np.diag(A).copy()
+        scale = np.where(np.isfinite(scale) & (scale > 0), scale, 1.0)
+        climbed = False
+        for _ in range(30):
+            try:
+                step = np.zeros(d)
+                M = (A + lam * np.diag(scale))[np.ix_(free, free)]
+                c = np.linalg.cholesky(M)
+                step[free] = np.linalg.solve(c.T, np.linalg.solve(c, g[free]))
+            except np.linalg.LinAlgError:
+                lam *= grow
+                grow *= 2.0
+                continue
+            z_new = np.clip(z + step, lo, hi)
+            step = z_new - z
+            predicted = float(g @ step - 0.5 * step @ A @ step)
+            f_new = float(logpost(z_new[None, :])[0])
+            n_eval += 1
+            if np.isfinite(f_new) and f_new > f and predicted > 0:
+                rho = (f_new - f) / predicted
+                lam *= max(1.0 / 3.0, 1.0 - (2.0 * rho - 1.0) ** 3)
+                grow = 2.0
+                climbed = True
+                break
+            lam *= grow
+            grow *= 2.0
+        if not climbed:
+            break
+        h = 1e-6 * _step_scale(logpost, z_new)
+        out = info(z_new, h)
+        n_eval += 2 * d + 1
+        if out is None:
+            break
+        gain = f_new - f
+        z, (f, g, A) = z_new, out
+        if gain < ftol:
+            break
+    return z, f, A, n_eval
+
+
+def _quasi_newton(logpost, z0, maxiter, information=None):
     """L-BFGS-B on -log p with vectorised central-difference gradients, inside the prior box.
 
     The coordinates are scaled by the Laplace widths at the start (u = (z - z0) / s), so the
     optimiser sees a problem of unit scale in every direction; the correlations are left to
-    its curvature memory.
+    its curvature memory. ``information`` (the expected information at z0, from
+    :func:`_fisher_scoring`) gives the widths without a finite-difference Hessian.
     """
     d = z0.size
-    H0, _, n0 = _hessian_and_gradient(logpost, z0)
+    if information is not None:
+        H0, n0 = -np.asarray(information, float), 0
+    else:
+        H0, _, n0 = _hessian_and_gradient(logpost, z0)
     with np.errstate(divide="ignore", invalid="ignore"):
         s = 1.0 / np.sqrt(np.abs(np.diag(H0)))
     s = np.where(np.isfinite(s) & (s > 0), s, 0.1)
@@ -141,9 +217,12 @@ def _newton_polish(logpost, z, f, *, steps=4):
 def find_map(logpost, starts, *, maxiter: int = 4000, n_local: int = 2, method: str = "quasi-newton") -> MapResult:
     """Maximise the log-posterior from the ``n_local`` best of ``starts`` (an (m, d) array in z).
 
-    ``method="quasi-newton"`` (default): L-BFGS-B with central-difference gradients, each
-    gradient one vectorised call of 2d+1 rows, inside the prior bounds; then Newton steps
-    with the finite-difference Hessian from the best optimum. ``method="nelder-mead"``: the
+    ``method="quasi-newton"`` (default): from each start, Levenberg-Marquardt-damped Fisher
+    scoring (:func:`_fisher_scoring`), first with the noise parameters held fixed
+    (``logpost.noise_mask``), then with all free; then L-BFGS-B with central-difference
+    gradients, each gradient one vectorised call of 2d+1 rows, inside the prior bounds, scaled
+    by the information (usually a handful of iterations: it confirms the optimum); then Newton
+    steps with the finite-difference Hessian from the best optimum. ``method="nelder-mead"``: the
     derivative-free route (Nelder-Mead, then a Powell polish), 2-7x slower on probe sweeps but
     indifferent to kinks in the model.
     """
@@ -164,7 +243,17 @@ def find_map(logpost, starts, *, maxiter: int = 4000, n_local: int = 2, method: 
         raise RuntimeError("no starting point has a finite posterior density")
     for i in order:
         if method == "quasi-newton":
-            x, fun, n = _quasi_newton(logpost, starts[i], maxiter)
+            z_fs, A = starts[i], None
+            noise = getattr(logpost, "noise_mask", None)
+            if noise is not None and np.any(noise):
+                # the curve first, with the noise model held at its start: far from the optimum the
+                # residuals are large and a free noise model inflates, flattening the posterior
+                # into spurious optima (seen on two-temperature sweeps)
+                z_fs, _, A, n = _fisher_scoring(logpost, z_fs, free=~noise)
+                n_eval += n
+            z_fs, _, A, n = _fisher_scoring(logpost, z_fs)
+            n_eval += n
+            x, fun, n = _quasi_newton(logpost, z_fs, maxiter, information=A)
         else:
             r = optimize.minimize(neg, starts[i], method="Nelder-Mead",
                                   options={"maxiter": maxiter, "xatol": 1e-6, "fatol": 1e-6, "adaptive": True})
