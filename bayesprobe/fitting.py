@@ -124,7 +124,7 @@ def _plain_seeded_starts(sweep, config, priors, student_nu, cls, params):
     keep = set(default_parameters(plain, V, I).names)
     p_plain = default_parameters(plain, V, I).with_priors({k: v for k, v in (priors or {}).items() if k in keep})
     lp_plain = LogPosterior(V, I, plain, p_plain, student_nu=nu)
-    mp = find_map(lp_plain, _starts(p_plain, cls, V, I, plain))
+    mp = find_map(lp_plain, _starts(p_plain, cls, V, I, plain), n_local=1)
     values = {n: float(v[0]) for n, v in p_plain.to_physical(mp.z[None, :]).items()}
     T0 = values.get("T_e", values.get("T_e_cold", 2.0))
     sets = distortion_starts(params, T0)

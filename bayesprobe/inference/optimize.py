@@ -73,7 +73,7 @@ def _value_and_gradient(logpost, z, h):
     return f0, g
 
 
-def _fisher_scoring(logpost, z0, *, maxiter: int = 100, ftol: float = 1e-4, free=None):
+def _fisher_scoring(logpost, z0, *, maxiter: int = 100, ftol: float = 1e-2, free=None):
     """Levenberg-Marquardt-damped Fisher scoring on the log-posterior, inside the prior box.
 
     Each iteration takes the gradient g and the expected information A (likelihood
@@ -97,12 +97,13 @@ def _fisher_scoring(logpost, z0, *, maxiter: int = 100, ftol: float = 1e-4, free
     h = 1e-6 * _step_scale(logpost, z0)
     lo, hi = _bounds(logpost, d, 2 * h)
     z = np.clip(np.asarray(z0, float), lo, hi)
-    out = info(z, h)
-    n_eval = 2 * d + 1
+    free = np.ones(d, bool) if free is None else np.asarray(free, bool)
+    rows = 2 * int(free.sum()) + 1
+    out = info(z, h, free)
+    n_eval = rows
     if out is None:
         return z0, None, None, n_eval
     f, g, A = out
-    free = np.ones(d, bool) if free is None else np.asarray(free, bool)
     lam, grow = 1.0, 2.0
     for _ in range(maxiter):
         scale = np.diag(A).copy()
@@ -134,8 +135,8 @@ def _fisher_scoring(logpost, z0, *, maxiter: int = 100, ftol: float = 1e-4, free
         if not climbed:
             break
         h = 1e-6 * _step_scale(logpost, z_new)
-        out = info(z_new, h)
-        n_eval += 2 * d + 1
+        out = info(z_new, h, free)
+        n_eval += rows
         if out is None:
             break
         gain = f_new - f

@@ -168,7 +168,8 @@ class LogPosterior:
 
     def model_current(self, Z) -> np.ndarray:
         """Model current for every row of Z, shape (k, n)."""
-        return probe_current(self.voltage, self.physical(Z), self.config, validate=False, branches=self.branches)
+        return probe_current(self.voltage, self.physical(Z), self.config, validate=False, branches=self.branches,
+                             series_solver="interpolate")
 
     def _sigma(self, phys, mu):
         return np.sqrt(phys["sigma_floor"][:, None] ** 2 + (phys["sigma_rel"][:, None] * mu) ** 2)
@@ -181,7 +182,8 @@ class LogPosterior:
         Z = np.atleast_2d(Z)
         phys = self.physical(Z)
         if mu is None:
-            mu = probe_current(self.voltage, phys, self.config, validate=False, branches=self.branches)
+            mu = probe_current(self.voltage, phys, self.config, validate=False, branches=self.branches,
+                             series_solver="interpolate")
         sigma = self._sigma(phys, mu)
         r = (self.current - mu) / sigma
         if self.student_nu is None:
@@ -193,14 +195,15 @@ class LogPosterior:
         nu = self.student_nu
         return self._t_const - np.log(sigma) - 0.5 * (nu + 1) * np.log1p(r * r / nu)
 
-    def score_and_information(self, z, h):
+    def score_and_information(self, z, h, free=None):
         """Log-posterior, its gradient and the expected information at ``z`` (sampler coordinates).
 
         Returns ``(f, g, A)``: ``f`` the log-posterior, ``g`` its central-difference gradient
         (steps ``h``), and ``A`` = J^T W J + P, the expected (Fisher) information of the
         likelihood plus the negative curvature of the prior, clipped at zero. J holds the
         central-difference derivatives of the model current mu_i and of ln sigma_i, all from
-        one vectorised call of 2d + 1 rows. For independent points with location mu_i and
+        one vectorised call of 2d + 1 rows (d: the ``free`` coordinates, default all; the others get
+        zero gradient and unit information). For independent points with location mu_i and
         scale sigma_i the information per point is 1/sigma_i^2 for mu_i and 2 for ln sigma_i
         under the Gaussian likelihood, (nu + 1)/((nu + 3) sigma_i^2) and 2 nu/(nu + 3) under a
         Student-t likelihood with nu degrees of freedom (Lange, Little & Taylor, JASA 84,
@@ -212,15 +215,19 @@ class LogPosterior:
         if self.fit_nu:
             return None
         z = np.asarray(z, float)
-        d = z.size
-        E = np.diag(h)
+        free = np.ones(z.size, bool) if free is None else np.asarray(free, bool)
+        h = np.asarray(h, float)[free]
+        d = int(free.sum())
+        E = np.zeros((d, z.size))
+        E[np.arange(d), np.flatnonzero(free)] = h
         Z = np.vstack([z[None, :], z + E, z - E])
         lp = self.log_prior(Z)
         if not np.isfinite(lp[0]):
             return None
         phys = self.physical(Z)
         with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
-            mu = probe_current(self.voltage, phys, self.config, validate=False, branches=self.branches)
+            mu = probe_current(self.voltage, phys, self.config, validate=False, branches=self.branches,
+                             series_solver="interpolate")
             ll = self.pointwise_loglik(Z, mu=mu).sum(axis=1)
             f = ll + lp
             if not np.isfinite(f[0]):
@@ -243,6 +250,11 @@ class LogPosterior:
         Jm = J_mu[good] / s0[good, None]
         Js = J_ls[good]
         A = w_mu * Jm.T @ Jm + w_ls * Js.T @ Js + np.diag(np.maximum(prior_curv, 0.0))
+        if d < z.size:                           # held coordinates: zero gradient, unit information
+            g_all, A_all = np.zeros(z.size), np.eye(z.size)
+            g_all[free] = g
+            A_all[np.ix_(free, free)] = A
+            g, A = g_all, A_all
         return float(f[0]), g, A
 
     def outlier_weights(self, Z) -> np.ndarray:
@@ -253,7 +265,8 @@ class LogPosterior:
         """
         Z = np.atleast_2d(Z)
         phys = self.physical(Z)
-        mu = probe_current(self.voltage, phys, self.config, validate=False, branches=self.branches)
+        mu = probe_current(self.voltage, phys, self.config, validate=False, branches=self.branches,
+                             series_solver="interpolate")
         r = (self.current - mu) / self._sigma(phys, mu)
         if self.student_nu is None:
             return np.ones_like(r)
@@ -285,7 +298,8 @@ class LogPosterior:
         Z = np.atleast_2d(Z)
         phys = self.physical(Z)
         if mu is None:
-            mu = probe_current(self.voltage, phys, self.config, validate=False, branches=self.branches)
+            mu = probe_current(self.voltage, phys, self.config, validate=False, branches=self.branches,
+                             series_solver="interpolate")
         sigma = self._sigma(phys, mu)
         if self.student_nu is None:
             eps = rng.standard_normal(mu.shape)
