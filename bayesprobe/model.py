@@ -311,8 +311,8 @@ def _series_current(V, R, cols: dict, config: ModelConfig, solver: str = "newton
     """The current through the sheath in series with R: I = f(V - I R) for every set and point.
 
     ``"newton"``: :func:`bayesprobe.physics.distortions._solve_series` on every element.
-    ``"interpolate"``: the two ends of each row's sweep are solved by Newton steps, the
-    characteristic and its slope are evaluated once at the sheath-voltage nodes of
+    ``"interpolate"``: the sheath-voltage range of each row is bounded from the characteristic at
+    the two ends of the sweep, the characteristic and its slope are evaluated once at the nodes of
     :func:`~bayesprobe.physics.distortions.series_nodes` between them, and every point is
     interpolated on the parametric curve (:func:`~bayesprobe.physics.distortions.hermite_series_current`).
     Used for parameter arrays, at least 50 points and ion currents smooth away from V_p
@@ -335,15 +335,18 @@ def _series_current(V, R, cols: dict, config: ModelConfig, solver: str = "newton
         return _solve_series(plasma_at_for(shape), V, R)
     V2 = np.broadcast_to(V, shape)
     ends = np.stack([V2.min(axis=-1), V2.max(axis=-1)], axis=-1)             # (k, 2)
-    I_ends = _solve_series(plasma_at_for(ends.shape), ends, R)
-    v_ends = ends - I_ends * R
+    # the sheath voltage at an end lies between V and V - f(V) R (the root of I = f(V - I R) lies
+    # between 0 and f(V)), so these bounds enclose the sheath voltages of the whole sweep
+    f_ends = _plasma_from_columns(ends, cols, config)
+    v_lo = ends[:, :1] - np.maximum(f_ends[:, :1], 0.0) * R
+    v_hi = ends[:, 1:] - np.minimum(f_ends[:, 1:], 0.0) * R
     V_p = cols["V_p"]
     if config.electrons == "maxwellian":
         T_min = T_max = cols["T_e"]
     else:
         T_min, T_max = cols["T_e_cold"], cols["T_e_hot"]
     A = cols["V_rf"] if config.rf_fluctuation else 0.0
-    nodes = series_nodes(v_ends[:, :1], v_ends[:, 1:], V_p, T_min, A, T_max, config.T_i)
+    nodes = series_nodes(v_lo, v_hi, V_p, T_min, A, T_max, config.T_i)
     f_nodes, slope_nodes = _plasma_and_slope(nodes, cols, config)
     return hermite_series_current(V2, np.broadcast_to(R, (shape[0], 1)), nodes,
                                   np.broadcast_to(f_nodes, nodes.shape), np.broadcast_to(slope_nodes, nodes.shape))

@@ -46,16 +46,15 @@ next to the steep exponential otherwise makes Newton cycle between the two. For 
 exponential f = a exp(V/T) the root is I = (T/R) W(R a exp(V/T) / T) with Lambert's W, which
 the tests use as the outside check.
 
-The likelihood uses a cheaper route with no iteration at the data points
-(:func:`hermite_series_current`): with the sheath at v the applied bias is W(v) = v + R f(v)
-and the current f(v), a parametric form of the measured characteristic. f and f' are
-evaluated once at about 250 sheath-voltage nodes per parameter set (:func:`series_nodes`:
-spaced 0.15 T_e around the knee, geometrically graded towards V_p, V_p +- V_rf and the ends),
-and every point is interpolated on (W, f) by a monotone cubic Hermite step (slopes
-dI/dW = f'/(1 + R f') limited as Fritsch & Carlson 1980). Only the two ends of each sweep
-are solved by Newton. Against the Newton solution its error is below 1e-4 of max |I| for
-thin-sheath and OML ions (tests/test_series_solvers.py); the ABR table's kinks at unknown
-voltages keep Newton there.
+The likelihood uses a cheaper route with no iteration (:func:`hermite_series_current`): with
+the sheath at v the applied bias is W(v) = v + R f(v) and the current f(v), a parametric form
+of the measured characteristic. f and f' are evaluated once at about 250 sheath-voltage nodes
+per parameter set (:func:`series_nodes`: spaced 0.15 T_e around the knee, geometrically graded
+towards V_p, V_p +- V_rf and the ends of the range), and every point is interpolated on (W, f)
+by a monotone cubic Hermite step (slopes dI/dW = f'/(1 + R f') limited as Fritsch & Carlson
+1980). Against the Newton solution its error is below 1e-4 of max |I| for thin-sheath and OML
+ions (tests/test_series_solvers.py); the ABR table's kinks at unknown voltages keep Newton
+there.
 
 Leakage and offset
 ------------------
@@ -409,8 +408,9 @@ def hermite_series_current(V, R, nodes, f_nodes, slope_nodes) -> np.ndarray:
     (dW/dv = 1 + R f' >= 1), so each V lies in one interval [W_j, W_j+1] of every row, found by
     one sorted search over all rows at once. I there is the cubic Hermite interpolant of the
     values f_j and slopes dI/dW = f'_j / (1 + R f'_j), limited to keep the interpolant
-    monotone (continuous with a continuous slope in V). Shapes: V (k, n) or (n,), R (k, 1), the node arrays (k, M) with
-    the first and last node at the sheath voltages of the smallest and largest V of the row.
+    monotone (continuous with a continuous slope in V). Shapes: V (k, n) or (n,), R (k, 1),
+    the node arrays (k, M), whose first and last nodes enclose the sheath voltages of the
+    smallest and largest V of the row.
     """
     W = nodes + R * f_nodes
     D = slope_nodes / (1.0 + R * np.maximum(slope_nodes, 0.0))
@@ -427,23 +427,20 @@ def hermite_series_current(V, R, nodes, f_nodes, slope_nodes) -> np.ndarray:
     cap = 3.0 * np.maximum(np.minimum(np.concatenate([inf, sec], axis=-1), np.concatenate([sec, inf], axis=-1)), 0.0)
     D = np.clip(D, 0.0, cap)
     V = np.broadcast_to(np.asarray(V, float), (k, np.shape(V)[-1]))
+    # each interval's cubic in t = (V - W_j)/(W_j+1 - W_j): c0 + t (c1 + t (c2 + t c3))
+    f0, f1 = f_nodes[:, :-1], f_nodes[:, 1:]
+    m0, m1 = dW * D[:, :-1], dW * D[:, 1:]
+    df = f1 - f0
+    with np.errstate(divide="ignore"):
+        inv = np.where(dW > 0, 1.0 / dW, 0.0)             # zero-length interval: t = 0, value f_j
+    table = [W[:, :-1], inv, f0, m0, 3.0 * df - 2.0 * m0 - m1, m0 + m1 - 2.0 * df]
     lo = W[:, :1]
     span = W[:, -1:] - lo
     span = np.where(span > 0, span, 1.0)
     row = 2.0 * np.arange(k)[:, None]
     j = np.searchsorted(((W - lo) / span + row).ravel(), ((V - lo) / span + row).ravel(), side="right") - 1
     j = j.reshape(V.shape) - M * np.arange(k)[:, None]
-    j = np.clip(j, 0, M - 2) + M * np.arange(k)[:, None]
-    Wf, Ff, Df = W.ravel(), f_nodes.ravel(), D.ravel()
-    w0, w1 = Wf[j], Wf[j + 1]
-    dw = w1 - w0
-    ok = dw > 0
-    dw = np.where(ok, dw, 1.0)
-    t = np.where(ok, np.clip((V - w0) / dw, 0.0, 1.0), 0.0)
-    t2 = t * t
-    t3 = t2 * t
-    h00 = 2 * t3 - 3 * t2 + 1
-    h10 = t3 - 2 * t2 + t
-    h01 = 1 - h00
-    h11 = t3 - t2
-    return h00 * Ff[j] + h01 * Ff[j + 1] + dw * (h10 * Df[j] + h11 * Df[j + 1])
+    j = np.clip(j, 0, M - 2) + (M - 1) * np.arange(k)[:, None]
+    w0, inv, c0, c1, c2, c3 = (np.take(col, j) for col in table)     # take: ~4x faster than fancy indexing
+    t = np.clip((V - w0) * inv, 0.0, 1.0)
+    return c0 + t * (c1 + t * (c2 + t * c3))
