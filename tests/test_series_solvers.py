@@ -145,3 +145,23 @@ def test_log_posterior_is_smooth_for_difference_steps():
             v = lp(np.array([z + e, z - e]))
             g.append((v[0] - v[1]) / (2 * h))
         assert g[0] == pytest.approx(g[1], rel=2e-3, abs=1e-2)
+
+
+def test_interpolated_solve_with_two_sweep_directions():
+    """Hysteresis shifts the sheath voltage per point (a (k, n) grid, not sorted along a row): the
+    interpolated solve still matches Newton."""
+    cfg = bp.ModelConfig(probe=PLANAR, ion="Ar", ion_collection="thin-sheath", rf_fluctuation=True,
+                         series_resistance=True, leakage=True, hysteresis=True)
+    p = _random_sets(PLANAR, "maxwellian", True, 16, seed=7)
+    rng = np.random.default_rng(8)
+    p.update(G_leak=rng.normal(0, 1e-7, 16), I_offset=rng.normal(0, 1e-6, 16),
+             V_shift=rng.normal(0, 2.0, 16), I_cap=rng.normal(0, 1e-5, 16))
+    up = np.linspace(-60, 25, 300)
+    V = np.concatenate([up, up[::-1]])
+    direction = np.concatenate([np.ones(300), -np.ones(300)])
+    ramp = direction.copy()
+    order = np.argsort(V, kind="stable")
+    branches = (direction[order], ramp[order])
+    exact = bp.probe_current(V[order], p, cfg, validate=False, branches=branches)
+    fast = bp.probe_current(V[order], p, cfg, validate=False, branches=branches, series_solver="interpolate")
+    assert np.max(np.abs(fast - exact) / np.max(np.abs(exact), axis=1, keepdims=True)) < 1e-4
