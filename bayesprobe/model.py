@@ -69,7 +69,8 @@ from .physics.distortions import (_rf_electron_current, _rf_electron_current_wit
                                   hermite_series_current, series_nodes)
 from .physics.electrons import _electron_current, _electron_current_with_slope
 from .physics.geometry import Probe
-from .physics.ions import ION_THEORIES, _ion_current, bohm_factor as _bohm_factor
+from .physics.ions import (ION_THEORIES, _ion_current, _oml_with_slope, _thin_sheath_with_slope,
+                           bohm_factor as _bohm_factor)
 
 __all__ = ["ModelConfig", "ELECTRON_MODELS", "probe_current", "floating_potential",
            "plasma_parameter_names", "effective_temperature", "distortion_parameter_names",
@@ -348,7 +349,7 @@ def _series_current(V, R, cols: dict, config: ModelConfig, solver: str = "newton
     A = cols["V_rf"] if config.rf_fluctuation else 0.0
     nodes = series_nodes(v_lo, v_hi, V_p, T_min, A, T_max, config.T_i)
     f_nodes, slope_nodes = _plasma_and_slope(nodes, cols, config)
-    return hermite_series_current(V2, np.broadcast_to(R, (shape[0], 1)), nodes,
+    return hermite_series_current(V, np.broadcast_to(R, (shape[0], 1)), nodes,
                                   np.broadcast_to(f_nodes, nodes.shape), np.broadcast_to(slope_nodes, nodes.shape))
 
 
@@ -368,8 +369,8 @@ def _columns(params: Mapping, config: ModelConfig) -> dict:
 
 
 def _plasma_and_slope(V, cols: dict, config: ModelConfig, ion_step: float = 1e-5):
-    """Plasma characteristic and its slope dI/dV (A/V): analytic for the electrons, a forward
-    difference of ``ion_step`` volts for the (slowly varying) ion current."""
+    """Plasma characteristic and its slope dI/dV (A/V): analytic for the electrons and for
+    thin-sheath and OML ions, a forward difference of ``ion_step`` volts for the ABR table."""
     n_e, n_i, V_p = cols["n_e"], cols["n_i"], cols["V_p"]
     V_rf = cols.get("V_rf") if config.rf_fluctuation else None
     probe, sx = config.probe, config.electron_sheath_expansion
@@ -384,10 +385,17 @@ def _plasma_and_slope(V, cols: dict, config: ModelConfig, ion_step: float = 1e-5
         I_e, dI_e = _electron_current_with_slope(V, V_p, n_e, T_e, probe, a, T_h, sx)
     else:
         I_e, dI_e = _rf_electron_current_with_slope(V, V_p, n_e, T_e, V_rf, probe, a, T_h, sx)
-    args = (n_i, T_s, probe, config.ion_mass_kg, config.ion_collection, n_e, config.T_i, config.bohm_factor,
-            config.sheath_expansion)
-    I_i = _ion_current(V, V_p, *args)
-    dI_i = (_ion_current(V + ion_step, V_p, *args) - I_i) / ion_step
+    theory = config.ion_collection
+    if theory == "thin-sheath" or (theory == "auto" and probe.geometry == "planar"):
+        I_i, dI_i = _thin_sheath_with_slope(V, V_p, n_i, T_s, probe, config.ion_mass_kg, n_e, config.T_i,
+                                            config.bohm_factor, config.sheath_expansion)
+    elif theory == "oml":
+        I_i, dI_i = _oml_with_slope(V, V_p, n_i, probe, config.ion_mass_kg, config.T_i)
+    else:
+        args = (n_i, T_s, probe, config.ion_mass_kg, theory, n_e, config.T_i, config.bohm_factor,
+                config.sheath_expansion)
+        I_i = _ion_current(V, V_p, *args)
+        dI_i = (_ion_current(V + ion_step, V_p, *args) - I_i) / ion_step
     return I_e - I_i, dI_e - dI_i
 
 

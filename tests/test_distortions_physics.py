@@ -212,3 +212,27 @@ def test_plasma_slope_matches_finite_difference():
         _, slope = _plasma_and_slope(V, cols, cfg)
         fd = (_plasma_from_columns(V + h, cols, cfg) - _plasma_from_columns(V - h, cols, cfg)) / (2 * h)
         assert np.allclose(slope, fd, rtol=1e-3, atol=1e-6 * np.max(np.abs(fd)))
+
+
+@pytest.mark.parametrize("ions, probe", [("thin-sheath", PLANAR), ("thin-sheath", WIRE), ("oml", WIRE),
+                                         ("oml", bp.Probe("spherical", radius=1e-3)),
+                                         ("thin-sheath", bp.Probe("spherical", radius=1e-3))])
+@pytest.mark.parametrize("expansion", [True, False])
+def test_analytic_ion_slope_matches_central_difference(ions, probe, expansion):
+    """The analytic ion slopes (Child-law edge growth below V_p, Boltzmann repulsion with T_i
+    above) against a central difference of the ion current, away from the kink at V_p (h = 1e-6 V;
+    truncation ~h^2 f''' / 6, tolerance 1e-6 relative; common practice, no source)."""
+    from bayesprobe.physics.ions import _ion_current, _oml_with_slope, _thin_sheath_with_slope
+    V = np.concatenate([np.linspace(-40, 9.9, 200), np.linspace(10.01, 10.3, 30)])
+    args = (10.0, 1e16, 3.0, probe, 6.63e-26, 1e16, 0.026, 0.6, expansion)
+    if ions == "thin-sheath":
+        I, dI = _thin_sheath_with_slope(V, *args)
+    else:
+        I, dI = _oml_with_slope(V, 10.0, 1e16, probe, 6.63e-26, 0.026)
+
+    def ion(v):
+        return _ion_current(v, 10.0, 1e16, 3.0, probe, 6.63e-26, ions, 1e16, 0.026, 0.6, expansion)
+    h = 1e-6
+    assert np.allclose(I, ion(V), rtol=1e-14)
+    fd = (ion(V + h) - ion(V - h)) / (2 * h)
+    assert np.allclose(dI, fd, rtol=1e-6, atol=1e-9 * np.max(np.abs(I)))

@@ -48,7 +48,7 @@ import numpy as np
 
 from ._checks import finite as _finite, positive as _positive
 from .constants import E_CHARGE, EPS0
-from .electrons import _attracted
+from .electrons import _attracted, _attracted_slope
 from .geometry import Probe
 
 __all__ = ["ION_THEORIES", "BOHM_FACTORS", "bohm_factor", "ion_current",
@@ -115,6 +115,42 @@ def _thin_sheath(V, V_p, n_i, T_e, probe, ion_mass, n_e, T_i, bohm_factor, sheat
         ratio = 1.0 + s
         I_B = I_B * (ratio if probe.geometry == "cylindrical" else ratio * ratio)
     return I_B * _repelled(V, V_p, T_i)
+
+
+def _thin_sheath_with_slope(V, V_p, n_i, T_e, probe, ion_mass, n_e, T_i, bohm_factor, sheath_expansion):
+    """(thin-sheath ion current, its derivative in V). Below V_p the Child-law edge grows as
+    s proportional to (V_p - V)^(3/4), so ds/dV = -3 s / (4 (V_p - V)) (unbounded at V_p-, where
+    it is finite only through V_p - V > 0); above V_p the repelled factor gives -I / T_i."""
+    I_B = bohm_factor * E_CHARGE * n_i * probe.area * np.sqrt(E_CHARGE * T_e / ion_mass)
+    rep = _repelled(V, V_p, T_i)
+    above = V > V_p
+    if sheath_expansion:
+        n_for_debye = n_i if n_e is None else n_e
+        lam = np.sqrt(EPS0 * T_e / (n_for_debye * E_CHARGE))
+        gap = np.maximum(V_p - V, 0.0)
+        u = np.sqrt(gap / T_e)
+        s = (_CHILD / probe.radius) * lam * (u * np.sqrt(u))
+        p = 1.0 if probe.geometry == "cylindrical" else 2.0
+        ratio = 1.0 + s
+        area = ratio if p == 1.0 else ratio * ratio
+        with np.errstate(divide="ignore", invalid="ignore"):
+            ds = np.where(gap > 0, -0.75 * s / gap, 0.0)
+        d_area = p * (1.0 if p == 1.0 else ratio) * ds
+        I = I_B * area * rep
+        dI = I_B * d_area * rep - np.where(above, I / T_i, 0.0)
+        return I, dI
+    I = I_B * rep
+    return I, np.where(above, -I / T_i, 0.0)
+
+
+def _oml_with_slope(V, V_p, n_i, probe, ion_mass, T_i):
+    """(OML ion current, its derivative in V): d/dV = -(I_th / T_i) d/dchi, chi = (V_p - V)/T_i."""
+    I_th = E_CHARGE * n_i * probe.area * np.sqrt(E_CHARGE * T_i / (2.0 * np.pi * ion_mass))
+    chi = (V_p - V) / T_i
+    rep = np.exp(np.minimum(chi, 0.0))
+    I = I_th * (rep + _attracted(chi, probe.geometry) - 1.0)
+    d_chi = np.where(chi < 0, rep, 0.0) + _attracted_slope(chi, probe.geometry)
+    return I, -(I_th / T_i) * d_chi
 
 
 def oml_ion_current(V, V_p, n_i, probe: Probe, ion_mass, *, T_i=0.026):
