@@ -12,11 +12,16 @@ so wall time is not used); also the per-call cost of the vectorised log-posterio
 model it prints the convergence evidence (MCMC: R-hat, bulk ESS, tau, steps; importance sampling:
 Pareto k-hat and its ESS, or the reason it fell back) and T_e / V_rf / R_series against the truth.
 
-Measured (shared 2-core machine, CPU s): log-posterior 32 x 1000 plain ~1.0-1.6 ms, RF+R+leak 11.8-13.4 ms
-(ratio 8-13; it was 20 before the Newton solve). engine="auto": plain 0.25 s (k-hat -0.4), distorted
-3.8 s, importance accepted in 3/3 seeds (k-hat 0.27-0.39; it used to be rejected and fall back to a
-136 s unconverged emcee run), ratio 15. engine="mcmc": plain 5.0 s, distorted 81 s (converged:
-R-hat 1.0013, ESS 1857, tau 37, 2616 steps), ratio 16. The < 4 target is not met by either engine.
+Measured (shared 2-core machine, CPU s; the numbers move by +-30 % from run to run):
+log-posterior 32 x 1000 plain 0.8-1.9 ms, RF+R+leak 3.4-4.8 ms (ratio 2.6-4.5; it was 7.9 with the
+Newton solve on every point and 20 before that). engine="auto", 5 seeds: plain 0.12-0.23 s,
+distorted 0.49-0.63 s, ratio 2.8-4.0 over five runs of the script, median of runs 3.2 (it was 16:
+3.0 s, of which 2.65 s MAP). Importance sampling accepted in every run (k-hat 0.27-0.41; one seed
+of five needs a second round). engine="mcmc", one seed: plain 4.1-4.8 s (tau 17, 1093 steps,
+24 walkers), distorted 25-33 s (tau 31, 2159-2220 steps, 36 walkers), ratio 5.3-8.1 (was 16): the
+distorted posterior has 9 parameters against 5, so 1.5x the walkers and ~1.9x the
+autocorrelation time, on top of the per-call cost. The < 4 target is met by the fast engine, not
+by emcee.
 """
 import argparse
 import statistics

@@ -222,10 +222,11 @@ def find_map(logpost, starts, *, maxiter: int = 4000, n_local: int = 2, method: 
 
     ``method="quasi-newton"`` (default): from each start, Levenberg-Marquardt-damped Fisher
     scoring (:func:`_fisher_scoring`), first with the noise parameters held fixed
-    (``logpost.noise_mask``), then with all free; then L-BFGS-B with central-difference
-    gradients, each gradient one vectorised call of 2d+1 rows, inside the prior bounds, scaled
-    by the information (usually a handful of iterations: it confirms the optimum); then Newton
-    steps with the finite-difference Hessian from the best optimum. ``method="nelder-mead"``: the
+    (``logpost.noise_mask``), then with all free; from the best of those, L-BFGS-B with
+    central-difference gradients, each gradient one vectorised call of 2d+1 rows, inside the
+    prior bounds, scaled by the information (usually a handful of iterations: it confirms the
+    optimum); then Newton steps with the finite-difference Hessian. Without an information
+    method (fitted Student-t degrees of freedom) L-BFGS-B runs from every start. ``method="nelder-mead"``: the
     derivative-free route (Nelder-Mead, then a Powell polish), 2-7x slower on probe sweeps but
     indifferent to kinks in the model.
     """
@@ -244,26 +245,34 @@ def find_map(logpost, starts, *, maxiter: int = 4000, n_local: int = 2, method: 
     order = [i for i in np.argsort(-values) if np.isfinite(values[i])][:n_local]
     if not order:
         raise RuntimeError("no starting point has a finite posterior density")
-    for i in order:
-        if method == "quasi-newton":
-            z_fs, A = starts[i], None
-            noise = getattr(logpost, "noise_mask", None)
+    if method == "quasi-newton":
+        candidates = []
+        noise = getattr(logpost, "noise_mask", None)
+        for i in order:
+            z_fs, f_fs, A = starts[i], None, None
             if noise is not None and np.any(noise):
                 # the curve first, with the noise model held at its start: far from the optimum the
                 # residuals are large and a free noise model inflates, flattening the posterior
                 # into spurious optima (seen on two-temperature sweeps)
                 z_fs, _, A, n = _fisher_scoring(logpost, z_fs, free=~noise)
                 n_eval += n
-            z_fs, _, A, n = _fisher_scoring(logpost, z_fs)
+            z_fs, f_fs, A, n = _fisher_scoring(logpost, z_fs)
             n_eval += n
+            candidates.append((z_fs, f_fs, A))
+        if all(c[1] is not None for c in candidates):
+            candidates = [max(candidates, key=lambda c: c[1])]   # L-BFGS-B finishes the best only
+        for z_fs, _, A in candidates:
             x, fun, n = _quasi_newton(logpost, z_fs, maxiter, information=A)
-        else:
+            n_eval += n
+            if best is None or fun < best[1]:
+                best = (x, fun)
+    else:
+        for i in order:
             r = optimize.minimize(neg, starts[i], method="Nelder-Mead",
                                   options={"maxiter": maxiter, "xatol": 1e-6, "fatol": 1e-6, "adaptive": True})
-            x, fun, n = r.x, r.fun, r.nfev
-        n_eval += n
-        if best is None or fun < best[1]:
-            best = (x, fun)
+            n_eval += r.nfev
+            if best is None or r.fun < best[1]:
+                best = (r.x, r.fun)
     if method == "quasi-newton":
         z, f, n, H = _newton_polish(logpost, best[0], -best[1])
         n_eval += n
