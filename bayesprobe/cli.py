@@ -187,7 +187,11 @@ def _add_circuit_options(p):
 
 
 def _circuit_priors(args, sweep):
-    """Priors from --circuit-resistance / --vacuum-sweep and the distortions they switch on."""
+    """Priors from --circuit-resistance / --vacuum-sweep and the distortions they switch on.
+
+    ``sweep``: the plasma sweep whose detected sign convention the plasma-off sweep is read in;
+    None (batch) uses ``--sign``, which must then be given explicitly.
+    """
     from .inference.instrument_priors import circuit_resistance_prior, vacuum_leakage_priors
     from .io import load_sweep
     priors, needed = {}, []
@@ -196,7 +200,13 @@ def _circuit_priors(args, sweep):
         needed.append("resistance")
     if getattr(args, "vacuum_sweep", None) is not None:
         # a plasma-off sweep has no sign to detect: read it in the plasma sweep's convention
-        sign = "ion-positive" if sweep.sign_flipped else "electron-positive"
+        if sweep is not None:
+            sign = "ion-positive" if sweep.sign_flipped else "electron-positive"
+        elif args.sign == "auto":
+            raise InputError("batch --vacuum-sweep needs --sign electron-positive or ion-positive: a plasma-off "
+                             "sweep has no sign convention to detect, and the sweeps of a batch may differ")
+        else:
+            sign = args.sign
         vac = load_sweep(args.vacuum_sweep, voltage_column=args.voltage_column,
                          current_column=args.current_column, sign=sign)
         try:
@@ -258,6 +268,7 @@ def build_parser() -> argparse.ArgumentParser:
                         "started from the previous sweep's result (default 0: every sweep starts cold)")
     _add_physics_options(b)
     _add_fit_options(b)
+    _add_circuit_options(b)
 
     r = sub.add_parser("report", help="self-contained HTML report of a fit, demo or batch results folder")
     r.add_argument("results", type=Path, metavar="RESULTS_DIR",
@@ -503,10 +514,18 @@ def cmd_batch(args) -> int:
             or args.student_t == "fit":
         raise InputError("batch models the distortions rf, resistance, leakage and hysteresis (--distortions); "
                          "auto and outliers are options of the fit command")
-    if args.distortions:
-        from .distortion_choice import apply_distortions
-        config, _ = apply_distortions(args.distortions, config, None)
     priors = _read_priors(args.priors)
+    measured, needed = _circuit_priors(args, None)      # one circuit for every sweep of the batch
+    clash = sorted(set(measured) & set(priors or {}))
+    if clash:
+        raise InputError(f"prior for {', '.join(clash)} given twice (--priors and the circuit calibration); "
+                         f"drop one")
+    if measured:       # batch records carry plain dicts (JSON)
+        priors = {**(priors or {}), **{n: p.to_dict() for n, p in measured.items()}}
+    distortions = tuple(args.distortions or ()) + tuple(n for n in needed if n not in (args.distortions or ()))
+    if distortions:
+        from .distortion_choice import apply_distortions
+        config, _ = apply_distortions(distortions, config, None)
     settings = SamplerSettings(max_steps=max(args.max_steps, 100))
     try:
         summary = fit_many(args.inputs, out_dir=args.out, config=config, model=args.model,

@@ -113,3 +113,42 @@ def test_auto_candidates_keep_only_their_calibrated_priors():
     assert set(_distortion_priors_for(priors, plain, None)) == {"T_e"}
     assert set(_distortion_priors_for(priors, plain.with_(series_resistance=True), None)) == {"R_series", "T_e"}
     assert set(_distortion_priors_for(priors, plain.with_(leakage=True), None)) == {"T_e"}
+
+
+def test_batch_takes_the_circuit_calibration(tmp_path, capsys):
+    """batch --circuit-resistance / --vacuum-sweep: one circuit for every sweep; the distortions are
+    switched on and every sweep's record carries the measured priors. The plasma-off sweep's sign
+    cannot be detected, so batch asks for --sign (one line, exit 2, nothing written)."""
+    import bayesprobe as bp
+    cfg = bp.ModelConfig(probe=bp.Probe("planar", radius=2e-3), ion="Ar", ion_collection="thin-sheath")
+    folder = tmp_path / "sweeps"
+    folder.mkdir()
+    for j, T in enumerate((2.5, 3.5)):
+        sim = bp.simulate({"n_e": 1e16, "T_e": T, "V_p": 8.0}, config=cfg, n_points=100, seed=10 + j)
+        (folder / f"s{j}.csv").write_text("voltage_V,current_A\n" + "\n".join(
+            f"{float(v)!r},{float(i)!r}" for v, i in zip(sim.sweep.voltage, sim.sweep.current)))
+    V = sim.sweep.voltage
+    rng = np.random.default_rng(5)
+    vac = tmp_path / "vac.csv"
+    I_vac = 1e-7 * V + 2e-6 + 1e-6 * rng.standard_normal(V.size)
+    vac.write_text("voltage_V,current_A\n" + "\n".join(f"{float(v)!r},{float(i)!r}" for v, i in zip(V, I_vac)))
+    common = ["batch", str(folder), "--geometry", "planar", "--radius", "2mm", "--ion-collection", "thin-sheath",
+              "--quasi-neutral", "--engine", "fast", "--vacuum-sweep", str(vac), "--circuit-resistance", "0:0.2",
+              "--no-figures", "--quiet", "--max-steps", "100", "--workers", "1"]
+    bad = tmp_path / "bad"
+    assert main(common + ["--out", str(bad)]) == 2
+    err = capsys.readouterr().err
+    assert "--sign" in err and len(err.strip().splitlines()) == 1 and not bad.exists()
+    out = tmp_path / "res"
+    code = main(common + ["--out", str(out), "--sign", "electron-positive"])
+    assert code in (0, 3), capsys.readouterr().err
+    ref = linregress(V, I_vac)
+    records = sorted((out / "sweeps").glob("*.json"))
+    assert len(records) == 2
+    for rec in records:
+        s = json.loads(rec.read_text())["summary"]
+        assert set(s["distortions"]["enabled"]) == {"resistance", "leakage"}
+        priors = s["priors"]
+        assert priors["G_leak"]["prior"]["mean"] == pytest.approx(ref.slope)
+        assert priors["I_offset"]["prior"]["mean"] == pytest.approx(ref.intercept)
+        assert priors["R_series"]["prior"] == {"kind": "normal", "lower": 0.0, "mean": 0.0, "sd": 0.2}
