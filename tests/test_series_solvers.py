@@ -119,8 +119,10 @@ def test_nodes_cover_the_sheath_range_with_the_knee_resolved():
                          np.array([[1.0]]), np.array([[2.0]]), 0.026)[0]
     assert nodes[0] == -50.0 and nodes[-1] == 20.0
     assert np.all(np.diff(nodes) >= 0)
-    core = nodes[(nodes > 10.0 - 1.0 - 20 * 2.0) & (nodes < 10.0 + 1.0 + 3 * 2.0)]
+    core = nodes[(nodes > 10.0 - 1.0 - 8 * 2.0) & (nodes < 10.0 + 1.0 + 3 * 2.0)]
     assert np.max(np.diff(core)) <= 0.15 * 2.0 + 1e-12
+    mid = nodes[(nodes > 10.0 - 1.0 - 20 * 2.0) & (nodes < 10.0 - 1.0 - 8 * 2.0)]
+    assert np.max(np.diff(mid) / (10.0 - mid[1:])) <= 0.05 + 1e-12        # 5 % of the distance from V_p
     assert np.sum(np.abs(nodes - 10.0) < 3e-6) == 4           # the pair 1e-9 T around V_p and the 1e-6 T pair
 
 

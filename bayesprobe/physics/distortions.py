@@ -48,7 +48,7 @@ the tests use as the outside check.
 
 The likelihood uses a cheaper route with no iteration (:func:`hermite_series_current`): with
 the sheath at v the applied bias is W(v) = v + R f(v) and the current f(v), a parametric form
-of the measured characteristic. f and f' are evaluated once at about 250 sheath-voltage nodes
+of the measured characteristic. f and f' are evaluated once at about 200 sheath-voltage nodes
 per parameter set (:func:`series_nodes`: spaced 0.15 T_e around the knee, geometrically graded
 towards V_p, V_p +- V_rf and the ends of the range), and every point is interpolated on (W, f)
 by a monotone cubic Hermite step (slopes dI/dW = f'/(1 + R f') limited as Fritsch & Carlson
@@ -338,10 +338,13 @@ def leakage_current(V, conductance, offset):
 #: core node spacing, in units of the smallest electron temperature of the row (see
 #: :func:`series_nodes`); the cubic Hermite error on an exponential is h^4/384 = 1.3e-6 relative
 SERIES_NODE_SPACING = 0.15
-#: the core reaches this many temperatures below V_p - V_rf (the electron current there is
-#: e^-20 = 2e-9 of its saturation value) and this many above V_p + V_rf
-_CORE_BELOW, _CORE_ABOVE = 20.0, 3.0
-#: geometric growth of the node spacing outside the core (spacing / distance from V_p)
+#: the core reaches this many temperatures below V_p - V_rf and this many above V_p + V_rf
+_CORE_BELOW, _CORE_ABOVE = 8.0, 3.0
+#: from the core down to 20 temperatures below V_p - V_rf (the electron current there is e^-20 =
+#: 2e-9 of its saturation value) the spacing grows geometrically with the distance from V_p by
+#: this ratio (0.4-1 T_e: Hermite error (h/T_e)^4/384 times an electron current below e^-8 I_es)
+_MID_BELOW, _MID_RATIO = 20.0, 1.05
+#: geometric growth of the node spacing beyond (spacing / distance from V_p)
 _TAIL_RATIO = 1.1
 #: extra nodes on both sides of each break point (V_p and, with RF, V_p +- V_rf), in temperatures:
 #: the ion and electron Child-law terms grow as |V - V_p|^(3/4) and the phase average changes
@@ -356,9 +359,10 @@ def series_nodes(v_lo, v_hi, V_p, T_min, A=0.0, T_max=None, T_i=None) -> np.ndar
 
     All arguments have shape (k, 1) (or broadcast to it): the sheath-voltage range of the
     sweep [v_lo, v_hi], the plasma potential, the smallest electron temperature (eV) and the
-    RF amplitude A (V); ``T_i`` (eV) the ion temperature. Nodes: a core from V_p - A - 20 T_min to V_p + A + 3 T_min spaced
-    ``SERIES_NODE_SPACING`` T_min; outside it spacings growing geometrically with the distance
-    from V_p (ratio 1.1); the break points V_p and V_p +- A with geometrically graded nodes on
+    RF amplitude A (V); ``T_i`` (eV) the ion temperature. Nodes: a core from V_p - A - 8 T_min
+    to V_p + A + 3 T_min spaced ``SERIES_NODE_SPACING`` T_min; down to V_p - A - 20 T_min spacings
+    growing geometrically with the distance from V_p (ratio 1.05), beyond that and above the core
+    ratio 1.1; the break points V_p and V_p +- A with geometrically graded nodes on
     both sides (down to 1e-6 T_min; a pair 1e-9 T_min either side of V_p gives each side of
     the knee its own slope); nodes 0.25-14 T_i above V_p; both ends. With a hotter group (``T_max`` > T_min, two-temperature electrons) a second core
     spaced ``SERIES_NODE_SPACING`` T_max continues down to V_p - A - 20 T_max. Nodes outside
@@ -376,10 +380,13 @@ def series_nodes(v_lo, v_hi, V_p, T_min, A=0.0, T_max=None, T_i=None) -> np.ndar
     start = np.maximum(core_lo, v_lo)
     start = core_lo + np.floor((start - core_lo) / h) * h          # on the row's own lattice
     core = np.minimum(start + h * np.arange(n_core), core_hi)
-    extra = []
+    d_mid = A + _CORE_BELOW * T
+    n_mid = int(np.ceil(np.log((A + _MID_BELOW * T) / d_mid).max() / np.log(_MID_RATIO)))
+    extra = [np.maximum(V_p - d_mid * _MID_RATIO ** np.arange(1, n_mid + 1), V_p - A - _MID_BELOW * T)]
+    core_lo = V_p - A - _MID_BELOW * T
     if np.any(T_hot > T):
         h_hot = SERIES_NODE_SPACING * T_hot
-        hot_lo = V_p - A - _CORE_BELOW * T_hot
+        hot_lo = V_p - A - _MID_BELOW * T_hot
         n_hot = int(np.ceil(np.max((core_lo - np.maximum(hot_lo, v_lo)) / h_hot))) + 1
         extra.append(np.maximum(core_lo - h_hot * np.arange(1, max(n_hot, 1) + 1), hot_lo))
         core_lo = np.minimum(core_lo, hot_lo)
