@@ -354,6 +354,23 @@ _GRADED = np.array([1e-6, 1e-5, 1e-4, 3e-4, 1e-3, 2e-3, 4e-3, 0.01, 0.02, 0.04, 
 _ION_GRADED = np.array([0.25, 0.5, 1.0, 2.0, 3.0, 4.0, 6.0, 9.0, 14.0])
 
 
+def _break_coefficients(with_rf: bool):
+    """(a, t) with the break-point nodes at V_p + a A + t T: a pair 1e-9 T either side of V_p (each
+    side of the knee gets its own slope), the graded nodes on both sides of V_p and, with RF, of
+    V_p +- A."""
+    g = np.concatenate([[1e-9], _GRADED])
+    t = [-g, g]
+    a = [np.zeros(g.size), np.zeros(g.size)]
+    if with_rf:
+        for side in (-1.0, 1.0):
+            t += [np.zeros(1), -_GRADED, _GRADED]
+            a += [np.full(1, side), np.full(_GRADED.size, side), np.full(_GRADED.size, side)]
+    return np.concatenate(a), np.concatenate(t)
+
+
+_BREAKS, _BREAKS_RF = _break_coefficients(False), _break_coefficients(True)
+
+
 def series_nodes(v_lo, v_hi, V_p, T_min, A=0.0, T_max=None, T_i=None) -> np.ndarray:
     """Sheath-voltage nodes for :func:`hermite_series_current`, one sorted row per parameter set.
 
@@ -396,13 +413,12 @@ def series_nodes(v_lo, v_hi, V_p, T_min, A=0.0, T_max=None, T_i=None) -> np.ndar
     n_above = int(np.ceil(np.max(np.log(np.maximum((v_hi - V_p) / d_above, 1.0)) / np.log(_TAIL_RATIO)))) + 1
     below = V_p - d_below * _TAIL_RATIO ** np.arange(1, n_below + 1)
     above = V_p + d_above * _TAIL_RATIO ** np.arange(1, n_above + 1)
-    g = T * _GRADED
-    eps = 1e-9 * T                      # a node on each side of the knee: one-sided slopes at the kink
-    breaks = [V_p - eps, V_p + eps, V_p - g, V_p + g]
+    # break points as V_p + a A + t T (+ T_i multiples): one broadcast instead of a dozen arrays
+    with_rf = bool(np.any(A > 0))
+    a_coef, t_coef = _BREAKS_RF if with_rf else _BREAKS
+    breaks = [V_p + A * a_coef + T * t_coef]
     if T_i is not None:
         breaks.append(V_p + np.asarray(T_i, float) * _ION_GRADED)
-    if np.any(A > 0):
-        breaks += [V_p - A, V_p + A, V_p - A - g, V_p - A + g, V_p + A - g, V_p + A + g]
     nodes = np.concatenate([v_lo, v_hi, core, below, above] + extra + breaks, axis=-1)
     return np.sort(np.clip(nodes, v_lo, v_hi), axis=-1)
 
@@ -446,8 +462,8 @@ def hermite_series_current(V, R, nodes, f_nodes, slope_nodes) -> np.ndarray:
     if V_in.ndim == 1 and np.all(V_in[1:] >= V_in[:-1]):
         # one sorted sweep for every row: place the k M nodes among the n points (cheap), then the
         # number of nodes at or below each point is a running count
-        pos = np.searchsorted(V_in, W.ravel(), side="left") + (n + 1) * np.repeat(np.arange(k), M)
-        j = np.cumsum(np.bincount(pos, minlength=k * (n + 1)).reshape(k, n + 1), axis=1)[:, :n] - 1
+        pos = np.searchsorted(V_in, W, side="left") + (n + 1) * np.arange(k)[:, None]
+        j = np.cumsum(np.bincount(pos.ravel(), minlength=k * (n + 1)).reshape(k, n + 1), axis=1)[:, :n] - 1
     else:
         # one search over all rows, each row's values mapped into its own unit interval [2r, 2r + 1]
         lo = W[:, :1]
