@@ -11,7 +11,7 @@ from .derived import derived_quantities
 from .distortion_choice import (apply_distortions, describe_distortions, distortion_starts, parse_distortions,
                                 select_distortions)
 from .inference.arviz_adapter import build_inference_data
-from .inference.optimize import find_map
+from .inference.optimize import approximate_map, find_map
 from .inference.posterior import LogPosterior, default_parameters
 from .inference.sampler import SamplerSettings, run_ensembles
 from .model import ELECTRON_MODELS, ModelConfig
@@ -124,8 +124,8 @@ def _plain_seeded_starts(sweep, config, priors, student_nu, cls, params):
     keep = set(default_parameters(plain, V, I).names)
     p_plain = default_parameters(plain, V, I).with_priors({k: v for k, v in (priors or {}).items() if k in keep})
     lp_plain = LogPosterior(V, I, plain, p_plain, student_nu=nu)
-    mp = find_map(lp_plain, _starts(p_plain, cls, V, I, plain), n_local=1)
-    values = {n: float(v[0]) for n, v in p_plain.to_physical(mp.z[None, :]).items()}
+    z_plain = approximate_map(lp_plain, _starts(p_plain, cls, V, I, plain))
+    values = {n: float(v[0]) for n, v in p_plain.to_physical(z_plain[None, :]).items()}
     T0 = values.get("T_e", values.get("T_e_cold", 2.0))
     sets = distortion_starts(params, T0)
     out = []
