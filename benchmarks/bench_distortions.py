@@ -12,16 +12,16 @@ so wall time is not used); also the per-call cost of the vectorised log-posterio
 model it prints the convergence evidence (MCMC: R-hat, bulk ESS, tau, steps; importance sampling:
 Pareto k-hat and its ESS, or the reason it fell back) and T_e / V_rf / R_series against the truth.
 
-Measured (shared 2-core machine, CPU s; the numbers move by +-30 % from run to run):
-log-posterior 32 x 1000 plain 0.8-1.9 ms, RF+R+leak 3.4-4.8 ms (ratio 2.6-4.5; it was 7.9 with the
-Newton solve on every point and 20 before that). engine="auto", 5 seeds: plain 0.12-0.23 s,
-distorted 0.49-0.63 s, ratio 2.8-4.0 over five runs of the script, median of runs 3.2 (it was 16:
-3.0 s, of which 2.65 s MAP). Importance sampling accepted in every run (k-hat 0.27-0.41; one seed
-of five needs a second round). engine="mcmc", one seed: plain 4.1-4.8 s (tau 17, 1093 steps,
-24 walkers), distorted 25-33 s (tau 31, 2159-2220 steps, 36 walkers), ratio 5.3-8.1 (was 16): the
-distorted posterior has 9 parameters against 5, so 1.5x the walkers and ~1.9x the
-autocorrelation time, on top of the per-call cost. The < 4 target is met by the fast engine, not
-by emcee.
+Measured (shared 2-core machine, CPU s; the numbers move by +-30 % from run to run, so the fits of
+the two models are interleaved): log-posterior 32 x 1000 plain 0.8-1.4 ms, RF+R+leak 3.2-4.2 ms
+(ratio 2.4-4.1; it was 7.9 with the Newton solve at every point and 20 before that).
+engine="auto", 7 seeds, interleaved: plain 0.15-0.20 s, distorted 0.47-0.62 s, ratio 3.12 and 3.16
+in two runs (it was 16: 3.0 s, of which 2.65 s MAP). Importance sampling is accepted in every run
+(k-hat 0.27-0.41; one seed in five needs a second round). engine="mcmc", 1-2 seeds: plain 3.7-5.1 s
+(tau 17-19, 1067-1291 steps, 24 walkers), distorted 19-30 s (tau 30-33, 1980-2630 steps, 36
+walkers), ratio 4.6-6.5 (was 16): the distorted posterior has 9 parameters against 5, so 1.5x the
+walkers and ~1.8x the autocorrelation time on top of a per-call cost ~2.5x. The < 4 target is met
+by the fast engine, not by emcee.
 """
 import argparse
 import statistics
@@ -113,15 +113,15 @@ def main():
           f"RF+R+leak {1e3 * t_full:.2f} ms, ratio {t_full / t_plain:.1f}")
     for engine in args.engines.split(","):
         repeats = args.mcmc_repeats if (engine == "mcmc" and args.mcmc_repeats) else args.repeats
-        times = {}
-        for label, dist, s in (("plain", None, clean), ("rf+resistance+leakage", "rf,resistance,leakage", sim)):
-            ts = []
-            for k in range(repeats):
+        cases = (("plain", None, clean), ("rf+resistance+leakage", "rf,resistance,leakage", sim))
+        ts = {label: [] for label, _, _ in cases}
+        for k in range(repeats):              # interleaved, so both see the same load of a shared machine
+            for label, dist, s in cases:
                 t = time.process_time()
                 r = bp.fit(s.sweep, config=cfg, seed=k, progress=False, engine=engine, distortions=dist)
-                ts.append(time.process_time() - t)
-                print(f"[{engine}] {label:<22} run {k}: {ts[-1]:.2f} s CPU; {_describe(r, s)}", flush=True)
-            times[label] = statistics.median(ts)
+                ts[label].append(time.process_time() - t)
+                print(f"[{engine}] {label:<22} run {k}: {ts[label][-1]:.2f} s CPU; {_describe(r, s)}", flush=True)
+        times = {label: statistics.median(v) for label, v in ts.items()}
         ratio = times["rf+resistance+leakage"] / times["plain"]
         print(f"[{engine}] median CPU per fit: plain {times['plain']:.2f} s, RF+R+leak "
               f"{times['rf+resistance+leakage']:.2f} s, ratio {ratio:.2f} (target < 4: "
