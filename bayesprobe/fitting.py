@@ -117,12 +117,13 @@ def _warm_start_z(params, start):
 
 
 def _plain_seeded_starts(sweep, config, priors, student_nu, cls, params):
-    """Starts in z for a distorted model: the plain model's MAP with each set of distortion starts."""
+    """Starts in z for a distorted model: a point near the plain model's optimum (Fisher scoring
+    only, :func:`approximate_map`) with each set of distortion starts."""
     plain = config.undistorted()
     V, I = sweep.voltage, sweep.current
     nu = None if student_nu == "fit" else student_nu
-    keep = set(default_parameters(plain, V, I).names)
-    p_plain = default_parameters(plain, V, I).with_priors({k: v for k, v in (priors or {}).items() if k in keep})
+    p_plain = default_parameters(plain, V, I)
+    p_plain = p_plain.with_priors({k: v for k, v in (priors or {}).items() if k in p_plain.names})
     lp_plain = LogPosterior(V, I, plain, p_plain, student_nu=nu)
     z_plain = approximate_map(lp_plain, _starts(p_plain, cls, V, I, plain))
     values = {n: float(v[0]) for n, v in p_plain.to_physical(z_plain[None, :]).items()}

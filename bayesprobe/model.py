@@ -270,8 +270,8 @@ def probe_current(V, params: Mapping, config: ModelConfig, *, validate: bool = T
         How the series-resistance equation is solved: ``"newton"`` to a relative residual of
         1e-6 followed by a last Newton step (error ~1e-12); ``"interpolate"`` (the likelihood's
         choice) by cubic Hermite interpolation on the parametric curve (v + R f(v), f(v)) at
-        about 200 nodes per parameter set (:func:`_series_current`), 3-5x cheaper on a
-        1000-point sweep, error below 1e-5 of max |I| (tests/test_distortions_physics.py).
+        about 200 nodes per parameter set (:func:`_series_current`), 4-7x cheaper on a
+        1000-point sweep, error below 1e-4 of max |I| (tests/test_series_solvers.py).
 
     Returns
     -------

@@ -168,7 +168,12 @@ class LogPosterior:
 
     def model_current(self, Z) -> np.ndarray:
         """Model current for every row of Z, shape (k, n)."""
-        return probe_current(self.voltage, self.physical(Z), self.config, validate=False, branches=self.branches,
+        return self._mu(self.physical(Z))
+
+    def _mu(self, phys):
+        """Model current for physical parameter arrays, shape (k, n). The series-resistance solve
+        is the interpolated one (:func:`bayesprobe.model.probe_current`, error < 1e-4 max |I|)."""
+        return probe_current(self.voltage, phys, self.config, validate=False, branches=self.branches,
                              series_solver="interpolate")
 
     def _sigma(self, phys, mu):
@@ -182,8 +187,7 @@ class LogPosterior:
         Z = np.atleast_2d(Z)
         phys = self.physical(Z)
         if mu is None:
-            mu = probe_current(self.voltage, phys, self.config, validate=False, branches=self.branches,
-                             series_solver="interpolate")
+            mu = self._mu(phys)
         sigma = self._sigma(phys, mu)
         r = (self.current - mu) / sigma
         if self.student_nu is None:
@@ -226,8 +230,7 @@ class LogPosterior:
             return None
         phys = self.physical(Z)
         with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
-            mu = probe_current(self.voltage, phys, self.config, validate=False, branches=self.branches,
-                             series_solver="interpolate")
+            mu = self._mu(phys)
             ll = self.pointwise_loglik(Z, mu=mu).sum(axis=1)
             f = ll + lp
             if not np.isfinite(f[0]):
@@ -265,8 +268,7 @@ class LogPosterior:
         """
         Z = np.atleast_2d(Z)
         phys = self.physical(Z)
-        mu = probe_current(self.voltage, phys, self.config, validate=False, branches=self.branches,
-                             series_solver="interpolate")
+        mu = self._mu(phys)
         r = (self.current - mu) / self._sigma(phys, mu)
         if self.student_nu is None:
             return np.ones_like(r)
@@ -298,8 +300,7 @@ class LogPosterior:
         Z = np.atleast_2d(Z)
         phys = self.physical(Z)
         if mu is None:
-            mu = probe_current(self.voltage, phys, self.config, validate=False, branches=self.branches,
-                             series_solver="interpolate")
+            mu = self._mu(phys)
         sigma = self._sigma(phys, mu)
         if self.student_nu is None:
             eps = rng.standard_normal(mu.shape)
