@@ -323,17 +323,14 @@ def _series_current(V, R, cols: dict, config: ModelConfig, solver: str = "newton
         raise ValueError(f"series_solver must be 'newton' or 'interpolate', got {solver!r}")
     shape = np.broadcast_shapes(V.shape, np.shape(R), *(np.shape(c) for c in cols.values()))
 
-    def plasma_at_for(grid):
-        def plasma_at(v, flat=None):
-            # (current, slope); flat: indices into the broadcast grid, so the solver can iterate
-            # on a subset
-            if flat is None:
-                return _plasma_and_slope(v, cols, config)
-            return _plasma_and_slope(v, _subset(cols, grid, flat), config)
-        return plasma_at
+    def plasma_at(v, flat=None):
+        # (current, slope); flat: indices into the broadcast grid, so the solver can iterate on a subset
+        if flat is None:
+            return _plasma_and_slope(v, cols, config)
+        return _plasma_and_slope(v, _subset(cols, shape, flat), config)
 
     if solver == "newton" or len(shape) != 2 or shape[-1] < _INTERPOLATE_MIN_POINTS or _ion_kinks(config):
-        return _solve_series(plasma_at_for(shape), V, R)
+        return _solve_series(plasma_at, V, R)
     V2 = np.broadcast_to(V, shape)
     ends = np.stack([V2.min(axis=-1), V2.max(axis=-1)], axis=-1)             # (k, 2)
     # the sheath voltage at an end lies between V and V - f(V) R (the root of I = f(V - I R) lies

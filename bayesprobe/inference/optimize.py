@@ -217,6 +217,19 @@ def _newton_polish(logpost, z, f, *, steps=4):
     return z, f, n_eval, H_here
 
 
+def _scoring_phases(logpost, z):
+    """Fisher scoring with the noise parameters (``logpost.noise_mask``) held at their start, then
+    with all free. Far from the optimum the residuals are large and a free noise model inflates,
+    flattening the posterior into spurious optima (seen on two-temperature sweeps), so the curve
+    comes first. Returns (z, log-posterior or None, information, rows evaluated)."""
+    n_eval = 0
+    noise = getattr(logpost, "noise_mask", None)
+    if noise is not None and np.any(noise):
+        z, _, _, n_eval = _fisher_scoring(logpost, z, free=~noise)
+    z, f, A, n = _fisher_scoring(logpost, z)
+    return z, f, A, n_eval + n
+
+
 def approximate_map(logpost, starts) -> np.ndarray:
     """A point near the posterior maximum, cheaply: Fisher scoring (noise model held, then free)
     from the best of ``starts``, without the L-BFGS-B and Newton refinement or a covariance. For
@@ -227,10 +240,7 @@ def approximate_map(logpost, starts) -> np.ndarray:
     if not np.any(np.isfinite(values)):
         raise RuntimeError("no starting point has a finite posterior density")
     z = starts[int(np.nanargmax(np.where(np.isfinite(values), values, np.nan)))]
-    noise = getattr(logpost, "noise_mask", None)
-    if noise is not None and np.any(noise):
-        z, _, _, _ = _fisher_scoring(logpost, z, free=~noise)
-    z, f, _, _ = _fisher_scoring(logpost, z)
+    z, f, _, _ = _scoring_phases(logpost, z)
     if f is None:
         return find_map(logpost, starts, n_local=1).z
     return z
@@ -266,16 +276,8 @@ def find_map(logpost, starts, *, maxiter: int = 4000, n_local: int = 2, method: 
         raise RuntimeError("no starting point has a finite posterior density")
     if method == "quasi-newton":
         candidates = []
-        noise = getattr(logpost, "noise_mask", None)
         for i in order:
-            z_fs, f_fs, A = starts[i], None, None
-            if noise is not None and np.any(noise):
-                # the curve first, with the noise model held at its start: far from the optimum the
-                # residuals are large and a free noise model inflates, flattening the posterior
-                # into spurious optima (seen on two-temperature sweeps)
-                z_fs, _, A, n = _fisher_scoring(logpost, z_fs, free=~noise)
-                n_eval += n
-            z_fs, f_fs, A, n = _fisher_scoring(logpost, z_fs)
+            z_fs, f_fs, A, n = _scoring_phases(logpost, starts[i])
             n_eval += n
             candidates.append((z_fs, f_fs, A))
         if all(c[1] is not None for c in candidates):
