@@ -42,6 +42,7 @@ from typing import Callable, Iterator
 import numpy as np
 
 from .errors import InputError
+from .quantities import table_names
 from .io import (MAX_FILE_BYTES, MAX_POINTS, NUMPY_SUFFIXES, TEXT_SUFFIXES, atomic_write_bytes,
                  atomic_write_text, load_sweep, sanitise_id, sweep_from_arrays)
 
@@ -62,9 +63,8 @@ MAX_RECORD_BYTES = 16 << 20
 #: largest per-sweep settings table (bytes, rows)
 MAX_TABLE_BYTES, MAX_TABLE_ROWS = 16 << 20, 200_000
 #: the parameters reported in the tables (those present in any sweep)
-TABLE_PARAMETERS = ("T_e", "T_e_cold", "T_e_hot", "hot_fraction", "n_e", "n_i", "V_f", "V_p",
-                    # distortion parameters, present only when that distortion is modelled
-                    "V_f_measured", "V_rf", "R_series", "G_leak", "I_offset", "V_shift", "I_cap")
+#: (registry flag ``table``; distortion parameters are present only when that distortion is modelled)
+TABLE_PARAMETERS = table_names()
 #: names recognised as the sweep-id column / array of a multi-sweep file
 SWEEP_ID_NAMES = ("sweep_id", "sweep", "sweep_no", "sweep_number", "sweep_index", "sweep_name", "sweepid")
 STATUSES = ("ok", "not-converged", "failed")

@@ -5,24 +5,12 @@ import numpy as np
 
 from .model import ModelConfig, effective_temperature, floating_potential, measured_floating_potential
 from .physics.constants import E_CHARGE, EPS0, M_E
+from .quantities import QUANTITIES
 
 __all__ = ["DERIVED_UNITS", "derived_quantities"]
 
-#: name -> (unit, description)
-DERIVED_UNITS = {
-    "V_f": ("V", "floating potential (root of the plasma characteristic, without distortions)"),
-    "V_f_measured": ("V", "zero crossing of the distorted model (what the instrument shows)"),
-    "Vp_minus_Vf_over_Te": ("1", "(V_p - V_f) / T_e (T_e_eff for two temperatures)"),
-    "T_e_eff": ("eV", "effective temperature, two thirds of the mean electron energy"),
-    "T_e_screen": ("eV", "screening temperature (harmonic, density-weighted)"),
-    "debye_length": ("m", "electron Debye length (screening temperature)"),
-    "r_p_over_debye": ("1", "probe radius / Debye length"),
-    "omega_pe": ("rad/s", "electron plasma frequency"),
-    "omega_pi": ("rad/s", "ion plasma frequency"),
-    "bohm_speed": ("m/s", "Bohm speed"),
-    "electron_mean_speed": ("m/s", "mean speed sqrt(8 e T_e/(pi m_e)) (T_e_eff)"),
-    "n_i_over_n_e": ("1", "ion / electron density (consistency check)"),
-}
+#: name -> (unit, description) of every derived quantity (from the registry, bayesprobe.quantities)
+DERIVED_UNITS = {q.name: (q.unit, q.description) for q in QUANTITIES.values() if q.group == "derived"}
 
 
 def derived_quantities(phys: dict, config: ModelConfig) -> dict:

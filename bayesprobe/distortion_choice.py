@@ -22,20 +22,14 @@ import numpy as np
 
 from .comparison import ELPD_MIN, SE_MULTIPLE, loo_difference, richer_supported
 from .model import DISTORTION_SWITCHES, distortion_parameter_names
+from .quantities import DISTORTIONS as _REGISTRY
 from .result import summarise_draws
 
 __all__ = ["DISTORTIONS", "parse_distortions", "apply_distortions", "enabled_distortions",
            "describe_distortions", "select_distortions", "OUTLIER_WEIGHT"]
 
 #: user-facing distortion name -> ModelConfig switch (``outliers`` is a likelihood choice)
-DISTORTIONS = {"rf": "rf_fluctuation", "resistance": "series_resistance", "leakage": "leakage",
-               "hysteresis": "hysteresis", "outliers": None}
-_DESCRIPTION = {"rf": "RF fluctuation of the plasma potential", "resistance": "series (circuit) resistance",
-                "leakage": "leakage / offset current",
-                "hysteresis": "up/down sweep hysteresis (branch shift, displacement current)",
-                "outliers": "outliers (heavy-tailed noise)"}
-_MAIN_PARAMETER = {"rf": "V_rf", "resistance": "R_series", "leakage": "G_leak", "hysteresis": "V_shift",
-                   "outliers": "nu"}
+DISTORTIONS = {name: d.switch for name, d in _REGISTRY.items()}
 #: a point is flagged as an outlier when its posterior mean weight (nu + 1)/(nu + r^2) is below this
 #: (the data give it less than a tenth of the weight of a typical point; our choice, no source: with a
 #: Gaussian bulk the fitted nu is small, and 0.25 would flag ordinary 2.5-sigma points)
@@ -136,7 +130,7 @@ def describe_distortions(logpost, Z, phys, voltage, counts=None, credible_level=
     if not enabled:
         return None
     rec = {"enabled": enabled,
-           "descriptions": {n: _DESCRIPTION[n] for n in enabled},
+           "descriptions": {n: _REGISTRY[n].description for n in enabled},
            "parameters": list(distortion_parameter_names(config)) + (["nu"] if nu_mode == "fit" else []),
            "note": ""}
     if nu_mode == "fit":
@@ -242,16 +236,16 @@ def _fmt(v, unit):
 
 def _note(found, chosen, shifts, T, tried=()):
     if not found:
-        names = ", ".join(_DESCRIPTION[n] for n in tried) or "none"
+        names = ", ".join(_REGISTRY[n].description for n in tried) or "none"
         return (f"No distortion is supported by these data: each modelled distortion ({names}) failed to "
                 f"improve the leave-one-out predictive density enough, so the undistorted model is kept.")
     ps = chosen.parameter_summary()
     parts = []
     for n in found:
-        p = _MAIN_PARAMETER[n]
+        p = _REGISTRY[n].main_parameter
         e = ps.get(p)
         detail = f" ({p} = {_fmt(e['median'], e['unit'])})" if e and e["median"] is not None else ""
-        parts.append(_DESCRIPTION[n] + detail)
+        parts.append(_REGISTRY[n].description + detail)
     text = "Distortions found and modelled: " + "; ".join(parts) + "."
     moves = []
     for name in (T, "n_e", "n_i"):

@@ -64,6 +64,7 @@ from typing import Mapping
 
 import numpy as np
 
+from .quantities import DISTORTIONS
 from .physics.constants import ion_mass as _ion_mass
 from .physics.distortions import (_rf_electron_current, _rf_electron_current_with_slope, _solve_series,
                                   hermite_series_current, series_nodes)
@@ -78,8 +79,7 @@ __all__ = ["ModelConfig", "ELECTRON_MODELS", "probe_current", "floating_potentia
 
 ELECTRON_MODELS = ("maxwellian", "bi-maxwellian")
 #: ModelConfig switch -> the nuisance parameters it adds
-DISTORTION_SWITCHES = {"rf_fluctuation": ("V_rf",), "series_resistance": ("R_series",),
-                       "leakage": ("G_leak", "I_offset"), "hysteresis": ("V_shift", "I_cap")}
+DISTORTION_SWITCHES = {d.switch: d.parameters for d in DISTORTIONS.values() if d.switch is not None}
 
 
 @dataclass(frozen=True)

@@ -21,6 +21,7 @@ from matplotlib.lines import Line2D
 from matplotlib.patches import Patch
 
 from .model import distortion_parameter_names, plasma_parameter_names, probe_current
+from .quantities import tex_label
 
 __all__ = ["PALETTE", "CONTOUR_LEVELS", "FIT_FIGSIZE", "plot_fit", "plot_corner", "plot_trace",
            "plot_eedf", "save_figures", "electron_current_draws"]
@@ -55,12 +56,6 @@ _MODEL_DRAWS = 200      # default number of draws evaluated for the noise-free m
 _PPC_DRAWS = 1000       # at most this many posterior-predictive draws for the band
 _TRACE_POINTS = 800     # at most this many points per chain in a trace
 
-_TEX_NAMES = {
-    "T_e": r"$T_\mathrm{e}$", "T_e_cold": r"$T_\mathrm{e,cold}$", "T_e_hot": r"$T_\mathrm{e,hot}$",
-    "hot_fraction": "hot fraction", "T_e_eff": r"$T_\mathrm{e,eff}$", "n_e": r"$n_\mathrm{e}$",
-    "n_i": r"$n_\mathrm{i}$", "V_p": r"$V_\mathrm{p}$", "V_f": r"$V_\mathrm{f}$",
-    "sigma_floor": r"$\sigma_\mathrm{floor}$", "sigma_rel": r"$\sigma_\mathrm{rel}$",
-}
 _TEMPERATURES = {"maxwellian": ("T_e",), "bi-maxwellian": ("T_e_cold", "T_e_hot", "hot_fraction")}
 
 
@@ -121,7 +116,7 @@ class _Scales:
         return unit or "1"
 
     def label(self, name) -> str:
-        return f"{_TEX_NAMES.get(name, name)} [{self.unit_label(name)}]"
+        return f"{tex_label(name)} [{self.unit_label(name)}]"
 
 
 def _flat(result, name) -> np.ndarray:
@@ -290,7 +285,7 @@ def _mark_potentials(ax, pots, *, label=False):
         ax.axvline(med, color=color, lw=1.3, ls="-" if name == "V_p" else "--", zorder=1)
         if label:
             handles.append(Line2D([], [], color=color, lw=1.3, ls="-" if name == "V_p" else "--",
-                                  label=f"{_TEX_NAMES[name]} posterior median, "
+                                  label=f"{tex_label(name)} posterior median, "
                                         f"{pots['level_pct']:g} % interval shaded"))
     for name, v in pots["classical"].items():
         ax.axvline(v, color=PALETTE["classical"], lw=0.8, ls=(0, (1, 1.5)), zorder=1.1)
@@ -300,12 +295,12 @@ def _mark_potentials(ax, pots, *, label=False):
     if label and pots["classical"]:
         handles.append(Line2D([], [], color=PALETTE["classical"], lw=0.8, ls=(0, (1, 1.5)), marker="v",
                               ms=5, label="classical " + " / ".join(
-                                  _TEX_NAMES[n] for n in pots["classical"])))
+                                  tex_label(n) for n in pots["classical"])))
     for name, v in pots["truth"].items():
         ax.axvline(v, color=PALETTE["truth"], lw=0.9, ls=(0, (4, 2, 1, 2)), zorder=1.2)
     if label and pots["truth"]:
         handles.append(Line2D([], [], color=PALETTE["truth"], lw=0.9, ls=(0, (4, 2, 1, 2)),
-                              label="true " + " / ".join(_TEX_NAMES[n] for n in pots["truth"])))
+                              label="true " + " / ".join(tex_label(n) for n in pots["truth"])))
     return handles
 
 
@@ -323,7 +318,7 @@ def _table_text(result, scales, classical, truth) -> list[tuple[str, str, dict]]
         f = scales.factor(n)
         lo, med, hi = (v * f for v in _interval(result.draws[n], level))
         dec = _decimals(lo, med, hi)
-        rows.append((f"{_TEX_NAMES.get(n, n)} [{scales.unit_label(n)}]", PALETTE["data"], {}))
+        rows.append((f"{tex_label(n)} [{scales.unit_label(n)}]", PALETTE["data"], {}))
         rows.append((f"    {_fmt(med, dec)}   [{_fmt(lo, dec)}, {_fmt(hi, dec)}]", PALETTE["model"],
                      {"family": "monospace"}))
         extra = []
@@ -334,7 +329,7 @@ def _table_text(result, scales, classical, truth) -> list[tuple[str, str, dict]]
         for text, color in extra:
             rows.append((f"    {text}", color, {"family": "monospace"}))
     if result.config.electrons != "maxwellian" and "T_e" in classical:
-        rows.append((f"classical single-T analysis: {_TEX_NAMES['T_e']} = {classical['T_e']:.3f} eV",
+        rows.append((f"classical single-T analysis: {tex_label('T_e')} = {classical['T_e']:.3f} eV",
                      PALETTE["classical"], {}))
     if isinstance(result.classical, dict) and "error" in result.classical:
         rows.append(("classical analysis failed", PALETTE["flag"], {}))
@@ -633,7 +628,7 @@ def plot_corner(result, *, names=None, truth=None) -> Figure:
     for j, n in enumerate(names):
         lo, med, hi = _interval(X[:, j], level)
         dec = _decimals(lo, med, hi)
-        axes[j, j].set_title(f"{_TEX_NAMES.get(n, n)} = {med:.{dec}f}"
+        axes[j, j].set_title(f"{tex_label(n)} = {med:.{dec}f}"
                              f"$^{{+{hi - med:.{dec}f}}}_{{-{med - lo:.{dec}f}}}$", fontsize=8.5)
         for row, (vals, color, tag) in enumerate(((cls, PALETTE["classical"], "classical"),
                                                   (truths, PALETTE["truth"], "true"))):

@@ -36,6 +36,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 
 from .errors import InputError
+from .quantities import description_of, html_label, main_names, unit_of
 
 __all__ = ["build_report", "REPORT_NAME", "SAFETY_NOTE", "SELFCHECK_ATTRIBUTE"]
 
@@ -74,28 +75,8 @@ PARETO_K_LIMIT = 0.7
 
 FIGURE_FILES = ("fit", "eedf", "corner", "trace")
 _PNG_MAGIC = b"\x89PNG\r\n\x1a\n"
-_MAIN = ("T_e", "T_e_cold", "T_e_hot", "hot_fraction", "T_e_eff", "n_e", "n_i", "V_f", "V_p")
 _BATCH_FIXED = ("sweep_id", "label", "source", "index", "status", "reason", "model", "converged",
                 "credible_level", "seed", "n_points", "r_hat_max", "ess_bulk_min", "tau_max", "n_steps", "n_draws")
-_KNOWN_UNITS = {"T_e": "eV", "T_e_cold": "eV", "T_e_hot": "eV", "T_e_eff": "eV", "T_e_screen": "eV",
-                "hot_fraction": "1", "n_e": "m^-3", "n_i": "m^-3", "V_f": "V", "V_p": "V"}
-
-_SYMBOLS = {
-    "T_e": "T<sub>e</sub>", "T_e_cold": "T<sub>e,cold</sub>", "T_e_hot": "T<sub>e,hot</sub>",
-    "hot_fraction": "hot fraction", "T_e_eff": "T<sub>e,eff</sub>", "T_e_screen": "T<sub>e,screen</sub>",
-    "n_e": "n<sub>e</sub>", "n_i": "n<sub>i</sub>", "V_f": "V<sub>f</sub>", "V_p": "V<sub>p</sub>",
-    "sigma_floor": "&sigma;<sub>floor</sub>", "sigma_rel": "&sigma;<sub>rel</sub>",
-    "Vp_minus_Vf_over_Te": "(V<sub>p</sub> &minus; V<sub>f</sub>)/T<sub>e</sub>",
-    "debye_length": "&lambda;<sub>D</sub>", "r_p_over_debye": "r<sub>p</sub>/&lambda;<sub>D</sub>",
-    "omega_pe": "&omega;<sub>pe</sub>", "omega_pi": "&omega;<sub>pi</sub>", "bohm_speed": "u<sub>B</sub>",
-    "electron_mean_speed": "&lang;v<sub>e</sub>&rang;", "n_i_over_n_e": "n<sub>i</sub>/n<sub>e</sub>",
-}
-_DESCRIPTIONS = {
-    "T_e": "electron temperature", "T_e_cold": "cold-group electron temperature",
-    "T_e_hot": "hot-group electron temperature", "hot_fraction": "hot-group density / n_e",
-    "n_e": "electron density", "n_i": "ion density", "V_f": "floating potential", "V_p": "plasma potential",
-    "sigma_floor": "noise floor (sd)", "sigma_rel": "noise proportional to |I|",
-}
 
 
 # ============================================================================ small helpers
@@ -209,7 +190,7 @@ def _unit(u) -> str:
 
 
 def _symbol(name: str) -> str:
-    return _SYMBOLS.get(name, _e(name, 80))
+    return html_label(name) or _e(name, 80)
 
 
 def _name_cell(name: str, description: str | None = None) -> str:
@@ -735,7 +716,7 @@ class _Page:
 
 def _main_names(summary: dict) -> list[str]:
     params = _dict(summary.get("parameters"))
-    return [n for n in _MAIN if n in params]
+    return list(main_names(params))
 
 
 def _interval(e: dict, digits: int) -> str:
@@ -806,7 +787,7 @@ def _batch_table(res: _Results, units: dict, anchors_by_label: dict) -> str:
     head = ["<th>sweep</th>"] + [f'<th class="num">{_e(c, 60)}</th>' for c in coords]
     head += ["<th>status</th>"] + ([] if one_model else ["<th>model</th>"])
     head += ['<th class="num">R&#770; max</th>', '<th class="num">ESS min</th>']
-    head += [f'<th class="num">{_symbol(p)} [{_unit(units.get(p, _KNOWN_UNITS.get(p, "")))}]</th>' for p in params]
+    head += [f'<th class="num">{_symbol(p)} [{_unit(units.get(p, unit_of(p)))}]</th>' for p in params]
     body = []
     for r in res.batch_rows:
         sid = r.get("sweep_id", "")
@@ -843,14 +824,12 @@ def _parameter_table(s: dict) -> str:
     classical = _dict(s.get("classical"))
     priors = _dict(s.get("priors"))
     fitted = set(x for x in _list(s.get("parameter_order")) if isinstance(x, str))
-    from .derived import DERIVED_UNITS
     rows = []
     for name, e in params.items():
         e = _dict(e)
         med = _num(e.get("median"))
         digits = _sig_digits(med, _num(e.get("ci_low")), _num(e.get("ci_high"))) if med is not None else 4
-        desc = _DESCRIPTIONS.get(name) or (DERIVED_UNITS[name][1] if name in DERIVED_UNITS else None) or \
-            _dict(priors.get(name)).get("description")
+        desc = description_of(name) or _dict(priors.get(name)).get("description")
         desc = (desc if isinstance(desc, str) else "") + (" · fitted" if name in fitted else " · derived")
         rows.append(f"<tr>{_name_cell(name, desc.lstrip(' ·'))}"
                     f"<td>{_unit(e.get('unit'))}</td><td class=\"num\">{_n(e.get('median'), digits)}</td>"

@@ -7,14 +7,14 @@ from pathlib import Path
 
 import numpy as np
 
-from .derived import DERIVED_UNITS
+from .quantities import QUANTITIES, describe, main_names, unit_of
 from .model import ModelConfig
 
 __all__ = ["FitResult", "summarise_draws", "SUMMARY_SCHEMA", "MAIN_PARAMETERS"]
 
 SUMMARY_SCHEMA = "bayesprobe.summary/1"
-#: the parameters every summary reports first (single-temperature names)
-MAIN_PARAMETERS = ("T_e", "n_e", "n_i", "V_f", "V_p")
+#: the parameters every summary reports first (registry order, bayesprobe.quantities)
+MAIN_PARAMETERS = main_names()
 
 
 def summarise_draws(x: np.ndarray, credible_level: float) -> dict:
@@ -118,8 +118,7 @@ class FitResult:
         return out
 
     def correlations(self) -> dict:
-        names = [n for n in ("T_e", "T_e_cold", "T_e_hot", "hot_fraction", "n_e", "n_i", "V_p", "V_f")
-                 if n in self.draws]
+        names = [n for n in main_names(self.draws) if QUANTITIES[n].fitted or n == "V_f"]
         X = np.vstack([np.log(self.draws[n].ravel()) if self.units.get(n) in ("m^-3", "eV", "1")
                        and np.all(self.draws[n] > 0) else self.draws[n].ravel() for n in names])
         good = np.all(np.isfinite(X), axis=0)
@@ -142,6 +141,7 @@ class FitResult:
             "diagnostics": self.diagnostics,
             "classical": self.classical,
             "parameter_order": list(self.parameter_order),
+            "quantities": describe(self.draws),
             "priors": self.priors,
             "model_settings": self.config.to_dict(),
             "likelihood": {"kind": "gaussian" if self.student_nu is None else "student-t",
@@ -236,6 +236,6 @@ def _versions(own):
 def units_for(names, parameters) -> dict:
     units = {p.name: p.unit for p in parameters}
     for n in names:
-        if n in DERIVED_UNITS:
-            units[n] = DERIVED_UNITS[n][0]
+        if n not in units and unit_of(n):
+            units[n] = unit_of(n)
     return units

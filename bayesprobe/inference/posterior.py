@@ -65,33 +65,17 @@ import numpy as np
 from scipy.special import gammaln
 
 from ..model import ModelConfig, distortion_parameter_names, plasma_parameter_names, probe_current
-from .parameters import Parameter, ParameterSet, Prior
+from ..quantities import QUANTITIES, SweepScale
+from .parameters import Parameter, ParameterSet
 
 __all__ = ["default_parameters", "LogPosterior", "MIN_HOT_RATIO", "NU_PRIOR"]
 
 #: prior of the fitted Student-t degrees of freedom (Juarez & Steel 2010), truncated to [1, 1000]
-NU_PRIOR = Prior("gamma", lower=1.0, upper=1000.0, a=2.0, b=0.1)
+NU_PRIOR = QUANTITIES["nu"].default_prior(None)
 
 #: the hot group must be at least this much hotter than the cold group (ordering, no label switching)
 MIN_HOT_RATIO = 1.5
 _LOG_MIN_RATIO = float(np.log(MIN_HOT_RATIO))
-
-_LABELS = {"n_e": (r"$n_e$", "m^-3", "electron density"),
-           "n_i": (r"$n_i$", "m^-3", "ion density"),
-           "T_e": (r"$T_e$", "eV", "electron temperature"),
-           "T_e_cold": (r"$T_{e,c}$", "eV", "cold-electron temperature"),
-           "T_e_hot": (r"$T_{e,h}$", "eV", "hot-electron temperature"),
-           "hot_fraction": (r"$\alpha_h$", "1", "hot electron density / total"),
-           "V_p": (r"$V_p$", "V", "plasma potential"),
-           "sigma_floor": (r"$\sigma_0$", "A", "noise floor (sd)"),
-           "sigma_rel": (r"$\sigma_r$", "1", "noise proportional to |I| (sd / |I|)"),
-           "V_rf": (r"$V_{rf}$", "V", "amplitude of the plasma-potential oscillation"),
-           "R_series": (r"$R_s$", "ohm", "series (circuit) resistance"),
-           "G_leak": (r"$G_{leak}$", "S", "leakage conductance"),
-           "I_offset": (r"$I_0$", "A", "offset current"),
-           "V_shift": (r"$\Delta V_{h}$", "V", "voltage shift of the rising-bias branch vs the falling one"),
-           "I_cap": (r"$I_{cap}$", "A", "displacement current at the mean sweep rate"),
-           "nu": (r"$\nu$", "1", "Student-t degrees of freedom (fitted)")}
 
 
 def default_parameters(config: ModelConfig, voltage, current, *, fit_nu: bool = False) -> ParameterSet:
@@ -99,31 +83,14 @@ def default_parameters(config: ModelConfig, voltage, current, *, fit_nu: bool = 
 
     ``fit_nu`` adds the Student-t degrees of freedom ``nu`` (see the module docstring).
     """
-    v_min, v_max = float(np.min(voltage)), float(np.max(voltage))
-    i_max = float(np.max(np.abs(current)))
-    span = max(v_max - v_min, 1e-6)
-    defaults = {
-        "n_e": Prior("log-uniform", 1e12, 1e21), "n_i": Prior("log-uniform", 1e12, 1e21),
-        "T_e": Prior("log-uniform", 0.1, 100.0), "T_e_cold": Prior("log-uniform", 0.1, 100.0),
-        "T_e_hot": Prior("log-uniform", 0.5, 300.0), "hot_fraction": Prior("beta", upper=0.5, a=1.0, b=4.0),
-        "V_p": Prior("uniform", v_min, v_max + 0.5 * (v_max - v_min)),
-        "sigma_floor": Prior("log-uniform", 1e-7 * i_max, i_max),
-        "sigma_rel": Prior("log-uniform", 1e-4, 1.0),
-        "V_rf": Prior("log-uniform", 1e-3, max(0.5 * span, 2e-3)),
-        "R_series": Prior("log-uniform", 1e-5 * span / i_max, span / i_max),
-        "G_leak": Prior("normal", mean=0.0, sd=0.1 * i_max / span),
-        "I_offset": Prior("normal", mean=0.0, sd=0.1 * i_max),
-        "V_shift": Prior("normal", mean=0.0, sd=0.1 * span),
-        "I_cap": Prior("normal", mean=0.0, sd=0.1 * i_max),
-        "nu": NU_PRIOR,
-    }
+    scale = SweepScale.of(voltage, current)
     names = list(plasma_parameter_names(config)) + list(distortion_parameter_names(config)) \
         + ["sigma_floor", "sigma_rel"] + (["nu"] if fit_nu else [])
     out = []
     for n in names:
-        label, unit, desc = _LABELS[n]
-        transform = "identity" if n in ("V_p", "G_leak", "I_offset", "V_shift", "I_cap") else ("logit" if n == "hot_fraction" else "log")
-        out.append(Parameter(n, unit, label, defaults[n], transform=transform, description=desc))
+        q = QUANTITIES[n]
+        out.append(Parameter(n, q.unit, q.tex, q.default_prior(scale), transform=q.transform,
+                             description=q.description))
     return ParameterSet(out)
 
 
