@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import contextlib
 import csv
+import io as _io
 import os
 import re
 import shutil
@@ -1016,6 +1017,46 @@ def atomic_write_text(path, text: str, encoding: str = "utf-8") -> Path:
     if not isinstance(text, str):
         raise TypeError("text must be a str")
     return atomic_write_bytes(path, text.encode(encoding))
+
+
+@contextlib.contextmanager
+def atomic_path(path) -> Iterator[Path]:
+    """Yield a temporary path beside ``path`` for a writer that needs a file name (netCDF,
+    figures); on success it is flushed to disk and renamed over ``path``, on failure removed.
+
+    The same guarantee as :func:`atomic_write_bytes`: readers see the old file or the new one.
+    """
+    path = Path(path)
+    parent = path.parent
+    parent.mkdir(parents=True, exist_ok=True)
+    fd, tmp = tempfile.mkstemp(prefix=f".{path.name[:100]}.", suffix=".tmp", dir=parent)
+    os.close(fd)
+    try:
+        yield Path(tmp)
+        with open(tmp, "rb+") as fh:
+            os.fsync(fh.fileno())
+        os.chmod(tmp, 0o666 & ~_umask())
+        os.replace(tmp, path)
+    except BaseException:
+        with contextlib.suppress(OSError):
+            os.unlink(tmp)
+        raise
+    _fsync_dir(parent)
+
+
+def write_csv(path, header: Sequence[str], rows, *, comments: Sequence[str] = ()) -> Path:
+    """Write a CSV table atomically: optional ``# `` comment lines, one header row, then ``rows``
+    (sequences of values; None is written as an empty field, floats with ``repr`` so they read
+    back exactly)."""
+    buf = _io.StringIO()
+    for line in comments:
+        buf.write(("# " + str(line)).rstrip() + "\n")
+    w = csv.writer(buf, lineterminator="\n")
+    w.writerow(list(header))
+    for row in rows:
+        w.writerow(["" if v is None else (repr(float(v)) if isinstance(v, (float, np.floating)) else v)
+                    for v in row])
+    return atomic_write_text(path, buf.getvalue())
 
 
 def _move_tree_into(src: Path, dst: Path) -> None:

@@ -68,6 +68,7 @@ from .quantities import DISTORTIONS
 from .physics.constants import ion_mass as _ion_mass
 from .physics.distortions import (_rf_electron_current, _rf_electron_current_with_slope, _solve_series,
                                   hermite_series_current, series_nodes)
+from .physics.electron_models import ELECTRON_MODELS as _ELECTRON_MODELS, electron_model
 from .physics.electrons import _electron_current, _electron_current_with_slope
 from .physics.geometry import Probe
 from .physics.ions import (ION_THEORIES, _ion_current, _oml_with_slope, _thin_sheath_with_slope,
@@ -77,7 +78,7 @@ __all__ = ["ModelConfig", "ELECTRON_MODELS", "probe_current", "floating_potentia
            "plasma_parameter_names", "effective_temperature", "distortion_parameter_names",
            "measured_floating_potential", "DISTORTION_SWITCHES"]
 
-ELECTRON_MODELS = ("maxwellian", "bi-maxwellian")
+ELECTRON_MODELS = tuple(_ELECTRON_MODELS)
 #: ModelConfig switch -> the nuisance parameters it adds
 DISTORTION_SWITCHES = {d.switch: d.parameters for d in DISTORTIONS.values() if d.switch is not None}
 
@@ -129,6 +130,11 @@ class ModelConfig:
     series_resistance: bool = False
     leakage: bool = False
     hysteresis: bool = False
+
+    @property
+    def electron_model(self):
+        """The electron model object (:mod:`bayesprobe.physics.electron_models`)."""
+        return electron_model(self.electrons)
 
     @property
     def distorted(self) -> bool:
@@ -194,7 +200,7 @@ def plasma_parameter_names(config: ModelConfig) -> tuple[str, ...]:
     names = ["n_e"]
     if not config.quasi_neutral:
         names.append("n_i")
-    names += ["T_e"] if config.electrons == "maxwellian" else ["T_e_cold", "T_e_hot", "hot_fraction"]
+    names += list(config.electron_model.parameter_names)
     names.append("V_p")
     return tuple(names)
 
@@ -357,7 +363,7 @@ def _ion_kinks(config: ModelConfig) -> bool:
 
 
 def _columns(params: Mapping, config: ModelConfig) -> dict:
-    names = ["n_e", "V_p"] + (["T_e"] if config.electrons == "maxwellian" else ["T_e_cold", "T_e_hot", "hot_fraction"])
+    names = ["n_e", "V_p", *config.electron_model.parameter_names]
     cols = {n: _column(params, n) for n in names}
     cols["n_i"] = _column(params, "n_i") if ("n_i" in params and not config.quasi_neutral) else cols["n_e"]
     if config.rf_fluctuation:
@@ -440,10 +446,7 @@ def _plasma_from_columns(V, cols: dict, config: ModelConfig):
 
 def effective_temperature(params: Mapping, config: ModelConfig):
     """Two thirds of the mean electron energy, in eV (equals T_e for a Maxwellian)."""
-    if config.electrons == "maxwellian":
-        return np.asarray(params["T_e"], float)
-    a = np.asarray(params["hot_fraction"], float)
-    return (1 - a) * np.asarray(params["T_e_cold"], float) + a * np.asarray(params["T_e_hot"], float)
+    return config.electron_model.effective_temperature(params)
 
 
 def floating_potential(params: Mapping, config: ModelConfig, *, iterations: int = 60):
@@ -458,8 +461,7 @@ def floating_potential(params: Mapping, config: ModelConfig, *, iterations: int 
     config = config.undistorted()
     _validate(params, config)
     V_p = np.atleast_1d(np.asarray(params["V_p"], float))
-    T_max = effective_temperature(params, config) if config.electrons == "maxwellian" else \
-        np.asarray(params["T_e_hot"], float)
+    T_max = config.electron_model.hottest_temperature(params)
     T_max = np.broadcast_to(np.atleast_1d(T_max), V_p.shape)
     lo = V_p - 80.0 * T_max
     hi = V_p.copy()
@@ -496,8 +498,7 @@ def measured_floating_potential(params: Mapping, config: ModelConfig, *, iterati
         return floating_potential(params, config, iterations=iterations)
     _validate(params, config)
     V_p = np.atleast_1d(np.asarray(params["V_p"], float))
-    T_max = effective_temperature(params, config) if config.electrons == "maxwellian" else \
-        np.asarray(params["T_e_hot"], float)
+    T_max = config.electron_model.hottest_temperature(params)
     T_max = np.broadcast_to(np.atleast_1d(T_max), V_p.shape)
     single = {k: np.atleast_1d(np.asarray(v, float)) for k, v in params.items()}
 
