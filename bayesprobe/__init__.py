@@ -3,7 +3,7 @@
 Fits a physical forward model of the whole characteristic to every measured point
 with MCMC and returns posteriors, diagnostics, model comparison and figures.
 """
-__version__ = "0.1.0"
+from ._version import __version__
 
 from .physics.geometry import Probe
 from .sweep import Sweep

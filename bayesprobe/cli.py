@@ -218,7 +218,7 @@ def _circuit_priors(args, sweep):
 
 
 def build_parser() -> argparse.ArgumentParser:
-    from . import __version__
+    from ._version import __version__
     p = _Parser(prog="bayesprobe", description="Bayesian analysis of electrostatic (Langmuir) probe I-V sweeps.")
     p.add_argument("--version", action="version", version=f"bayesprobe {__version__}")
     sub = p.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)

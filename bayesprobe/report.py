@@ -1173,7 +1173,7 @@ def _render(res: _Results) -> str:
                  "batch": f"batch of {res.n_sweeps} sweeps"}[res.kind]
     anchors = {id(sw): f"s{k + 1}" for k, sw in enumerate(res.sweeps)}
     anchors_by_label = {sw.label: anchors[id(sw)] for sw in res.sweeps}
-    from . import __version__
+    from ._version import __version__
 
     # warnings
     all_w: list = [_Warning("problem", sw, "", _e(msg)) for sw, msg in res.problems]

@@ -127,7 +127,7 @@ class FitResult:
 
     def summary(self) -> dict:
         """The contract's ``summary.json`` content as a dict."""
-        from . import __version__
+        from ._version import __version__
         s = {
             "schema": SUMMARY_SCHEMA,
             "input": self.sweep_info.get("source", "array"),
