@@ -93,13 +93,13 @@ import math
 from dataclasses import dataclass, field
 
 import numpy as np
-from scipy.ndimage import median_filter
-from scipy.signal import savgol_coeffs, savgol_filter
 
 from .model import ModelConfig
 from .physics.constants import E_CHARGE, M_E
 from .physics.electrons import electron_saturation_current
 from .physics.formulary import child_sheath_thickness
+from .signal_tools import (clean_sweep, interpolated_root, line_fit, odd, savgol, savgol_noise_gain,
+                           savgol_residual_noise, saturation_window, upward_crossings, window_ladder)
 
 __all__ = ["ClassicalResult", "classical_analysis", "oml_ion_density", "oml_ion_square_slope",
            "planar_floating_drop"]
@@ -109,7 +109,6 @@ _MIN_WINDOW = 5          # points needed in a fit window
 _ION_CLEARANCE = 3.0     # ion window ends this many T_e below V_f
 _KNEE_MARGIN = 0.5       # T_e window ends this many T_e below V_p
 _KNEE_NOISE = 0.1        # target noise of the smoothed dI/dV, relative to its peak
-_POLYORDER = 3
 
 
 # ----------------------------------------------------------------------------- formulas
@@ -186,85 +185,246 @@ class ClassicalResult:
                 "units": {"T_e": "eV", "n_e": "m^-3", "n_i": "m^-3", "V_f": "V", "V_p": "V"}}
 
 
-# ----------------------------------------------------------------------------- helpers
+# ----------------------------------------------------------------------------- steps
 
-def _odd(k) -> int:
-    k = int(k)
-    return k if k % 2 else k + 1
+@dataclass
+class _Grid:
+    """The sweep (sorted, distinct biases) and its resampling onto a uniform grid."""
 
+    V: np.ndarray           # biases (V)
+    I: np.ndarray           # currents (A)
+    sigma: np.ndarray       # local noise sd at V
+    Vg: np.ndarray          # uniform grid, as many points as V
+    Ig: np.ndarray          # current interpolated onto Vg
+    sigma_g: np.ndarray     # local noise sd on Vg
+    dV: float
+    max_window: int         # widest filter window tried
 
-def _merge_duplicates(V, I):
-    """Sort by voltage and average the currents of repeated voltages."""
-    order = np.argsort(V, kind="stable")
-    V, I = V[order], I[order]
-    Vu, inverse, counts = np.unique(V, return_inverse=True, return_counts=True)
-    if Vu.size == V.size:
-        return V, I
-    return Vu, np.bincount(inverse, weights=I) / counts
-
-
-def _smooth(y, window, deriv=0, delta=1.0):
-    return savgol_filter(y, window, _POLYORDER, deriv=deriv, delta=delta, mode="interp")
-
-
-def _local_noise(y):
-    """Local noise sd of ``y`` (uniform grid): robust running spread of the residual
-    about a short cubic Savitzky-Golay fit, corrected for the fit's own leverage."""
-    w = 7                                   # callers guarantee y.size >= 8
-    resid = y - _smooth(y, w)
-    h0 = savgol_coeffs(w, _POLYORDER)[w // 2]
-    scale = 1.4826 / np.sqrt(1.0 - h0)
-    span = _odd(max(15, y.size // 20))
-    sd = scale * median_filter(np.abs(resid), size=span, mode="nearest")
-    # floor: a thousandth of the typical noise, and never below 1e-9 of the largest
-    # current (a noise-free sweep would otherwise get infinite weights)
-    floor = max(1e-3 * scale * float(np.median(np.abs(resid))), 1e-9 * float(np.max(np.abs(y))), 1e-300)
-    return np.maximum(sd, floor)
+    @classmethod
+    def of(cls, V, I):
+        n = V.size
+        Vg = np.linspace(V[0], V[-1], n)
+        Ig = np.interp(Vg, V, I)
+        sigma_g = savgol_residual_noise(Ig)
+        return cls(V, I, np.interp(V, Vg, sigma_g), Vg, Ig, sigma_g, Vg[1] - Vg[0],
+                   max(_MIN_WINDOW, odd(n // 3) - 2))
 
 
-def _line_fit(x, y, w=None):
-    """Weighted least-squares line y = a + b (x - x0).
+@dataclass
+class _KneeFilter:
+    """The derivative filter chosen for the knee and what it gave."""
 
-    Returns (a, b, x0, cov, chi2_red); ``cov`` uses the weights as inverse
-    variances, so it is absolute when they are.
-    """
-    if w is None:
-        w = np.ones_like(x)
-    x0 = float(np.average(x, weights=w))
-    X = np.column_stack([np.ones_like(x), x - x0])
-    XtW = X.T * w
-    F = XtW @ X
-    coef = np.linalg.solve(F, XtW @ y)
-    resid = y - X @ coef
-    dof = max(x.size - 2, 1)
-    chi2_red = float(np.sum(w * resid**2) / dof)
-    return float(coef[0]), float(coef[1]), x0, np.linalg.inv(F), chi2_red
+    window: int
+    deriv: np.ndarray       # smoothed dI/dV on the grid
+    d_sd: float             # its noise sd near the knee
+    lo: int                 # first grid index above the last - to + crossing of that filter
+    noisy: bool             # even the widest window missed the noise target
 
 
-def _crossings(s):
-    """Indices k with s[k] < 0 <= s[k+1]."""
-    return np.flatnonzero((s[:-1] < 0) & (s[1:] >= 0))
-
-
-def _interp_root(V, s, k):
-    v0, v1, s0, s1 = V[k], V[k + 1], s[k], s[k + 1]
-    return float(v0 - s0 * (v1 - v0) / (s1 - s0))
+def _knee_filter(g: _Grid) -> _KneeFilter:
+    """The narrowest cubic Savitzky-Golay window whose dI/dV noise above V_f is at most
+    :data:`_KNEE_NOISE` of the dI/dV peak there (the widest tried, flagged, if none is)."""
+    candidates = window_ladder(_MIN_WINDOW, g.max_window, 14)
+    for w in candidates:
+        d = savgol(g.Ig, w, deriv=1, delta=g.dV)
+        cross = upward_crossings(savgol(g.Ig, w))
+        lo = cross[-1] + 1 if cross.size else 0
+        peak = float(np.max(d[lo:]))
+        sd = float(np.max(g.sigma_g[lo:]) * savgol_noise_gain(w, 1, g.dV))
+        if peak > 0 and sd <= _KNEE_NOISE * peak:
+            return _KneeFilter(w, d, sd, lo, False)
+    return _KneeFilter(w, d, sd, lo, True)
 
 
 def _floating(Vg, smooth):
-    """Last - to + zero crossing of the smoothed current; the sweep end if there is none."""
-    cross = _crossings(smooth)
+    """Last - to + zero crossing of the smoothed current; the sweep end if there is none.
+
+    Returns (V_f, grid index below it, all crossing indices)."""
+    cross = upward_crossings(smooth)
     if cross.size == 0:
         k = Vg.size - 1 if smooth[-1] < 0 else 0
         return float(Vg[k]), k, cross
     k = int(cross[-1])
-    return _interp_root(Vg, smooth, k), k, cross
+    return interpolated_root(Vg, smooth, k), k, cross
 
 
 def _floating_flags(cross):
-    if cross.size == 0:
-        return ["vf_not_bracketed"]
-    return ["several_zero_crossings"] if cross.size > 1 else []
+    return ["vf_not_bracketed"] if cross.size == 0 else ["several_zero_crossings"] if cross.size > 1 else []
+
+
+def _plasma_potential(g: _Grid, knee: _KneeFilter, lo: int, spherical: bool):
+    """V_p from the smoothed dI/dV at and above grid index ``lo``; also whether the
+    knee ran into the top end of the sweep.
+
+    The filter's end points (mode="interp") are noisier than its interior, so the
+    last half-window is searched only if the maximum runs into it.
+    """
+    deriv, dV, n = knee.deriv, g.dV, g.Vg.size
+    edge = n - 1 - knee.window // 2
+    d = deriv[lo:edge + 1] if edge > lo else deriv[lo:]
+    k_max = int(np.argmax(d))
+    if lo + k_max >= edge:
+        d = deriv[lo:]
+        k_max = int(np.argmax(d))
+    j = lo + k_max
+    if spherical:
+        # dI/dV of a sphere stays flat above V_p: take where it first reaches the top
+        threshold = d[k_max] - 2.0 * knee.d_sd
+        k_first = int(np.argmax(d >= threshold))
+        j = lo + k_first
+        if k_first > 0 and deriv[j] > deriv[j - 1]:
+            return float(g.Vg[j - 1] + (threshold - deriv[j - 1]) / (deriv[j] - deriv[j - 1]) * dV), False
+        return float(g.Vg[j]), False
+    V_p = float(g.Vg[j])
+    if 0 < j < n - 1:                      # vertex of the parabola through the top three
+        y0, y1, y2 = deriv[j - 1], deriv[j], deriv[j + 1]
+        curv = y0 - 2.0 * y1 + y2
+        if curv < 0:
+            V_p += float(np.clip(0.5 * (y0 - y2) / curv, -0.5, 0.5)) * dV
+    return V_p, j >= edge
+
+
+class _IonLine:
+    """The extrapolated ion-saturation current I(V) (negative) with its fit covariance.
+
+    ``square``: the line was fitted to I^2 (cold-ion OML cylinder), I = -sqrt(a + b (V - x0)),
+    and ``slope`` is d(I^2)/dV; otherwise I = a + b (V - x0) and ``slope`` is None.
+    """
+
+    def __init__(self, a, b, x0, cov, square):
+        self.a, self.b, self.x0, self.cov, self.square, self.slope = a, b, x0, cov, square, b if square else None
+
+    def __call__(self, v):
+        if self.square:
+            return -np.sqrt(np.maximum(self.a + self.b * (np.asarray(v) - self.x0), 0.0))
+        return self.a + self.b * (np.asarray(v) - self.x0)
+
+    def jac(self, v):
+        """d I(v) / d(a, b), shape (len(v), 2)."""
+        dx = np.asarray(v) - self.x0
+        if self.square:
+            root = np.sqrt(np.maximum(self.a + self.b * dx, np.finfo(float).tiny))
+            return np.column_stack([-0.5 / root, -0.5 * dx / root])
+        return np.column_stack([np.ones_like(dx), dx])
+
+
+def _ion_line(V, I, V_f, T_e, oml_cylinder):
+    """Fit the ion line below V_f - 3 T_e (see the module docstring, step 2).
+
+    Returns (line, flags, window (V_lo, V_hi))."""
+    limit = V_f - _ION_CLEARANCE * T_e
+    in_win, hi, stage = saturation_window(V, limit, min(V_f, V[-1]), _MIN_WINDOW)
+    flags = ["ion_window_short"] if stage == 2 else []
+    if hi > V_f - _ION_CLEARANCE * T_e:
+        flags.append("ion_window_contaminated")
+    Vw, Iw = V[in_win], I[in_win]
+    line = None
+    if oml_cylinder:
+        y = -Iw * np.abs(Iw)                    # I^2 where the current is negative
+        scale = float(np.max(np.abs(y))) or 1.0
+        a, b, x0, cov, chi2_red = line_fit(Vw, y / scale)
+        a, b = a * scale, b * scale
+        if b < 0:
+            line = _IonLine(a, b, x0, cov * chi2_red * scale**2, square=True)
+        else:
+            flags.append("ion_slope_wrong_sign")
+    if line is None:
+        a, b, x0, cov, chi2_red = line_fit(Vw, Iw)
+        line = _IonLine(a, b, x0, cov * chi2_red, square=False)
+    return line, flags, (float(Vw[0]), float(hi))
+
+
+def _temperature(g: _Grid, Is_g, ion: _IonLine, V_f, V_p, T_e):
+    """Weighted fit of ln I_e over [V_f, V_p - T_e/2] (else [V_f, V_p]), step 4.
+
+    Returns (T_e or NaN, its standard error, flags, window or None).
+    """
+    V, sigma = g.V, g.sigma
+    I_e = g.I - ion(V)
+    Ie_s = np.interp(V, g.Vg, Is_g) - ion(V)
+    for lo_v, hi_v, tag in ((V_f, V_p - _KNEE_MARGIN * T_e, None), (V_f, V_p, "te_window_widened")):
+        sel = (V >= lo_v) & (V <= hi_v) & (I_e > 0) & (Ie_s > 0)
+        if np.count_nonzero(sel) < _MIN_WINDOW:
+            continue
+        flags = [tag] if tag else []
+        window = (float(lo_v), float(hi_v))
+        Vs = V[sel]
+        w = (Ie_s[sel] / sigma[sel]) ** 2
+        fit = line_fit(Vs, np.log(I_e[sel]), w)
+        b_t, cov = fit.slope, fit.cov
+        if not b_t > 0:
+            return float("nan"), float("nan"), flags, window
+        # the slope is linear in ln I_e: b = g . y. The ion line's own
+        # uncertainty moves every ln I_e by -delta(ion)/I_e; add its share.
+        gain = cov[1, 0] * w + cov[1, 1] * w * (Vs - fit.x0)
+        sens = gain @ (-ion.jac(Vs) / Ie_s[sel, None])
+        var_b = cov[1, 1] * max(fit.chi2_red, 1.0) + float(sens @ ion.cov @ sens)
+        return 1.0 / b_t, float(np.sqrt(var_b)) / b_t**2, flags, window
+    return float("nan"), float("nan"), [], None
+
+
+@dataclass
+class _Iteration:
+    """State of the joint V_f / ion line / T_e iteration (steps 1, 2 and 4)."""
+
+    V_f: float
+    cross: np.ndarray
+    T_e: float
+    T_e_se: float = float("nan")
+    ion: _IonLine | None = None
+    I_is: float = float("nan")
+    vf_flags: list = field(default_factory=list)
+    ion_flags: list = field(default_factory=list)
+    te_flags: list = field(default_factory=list)
+
+
+def _iterate_ion_and_temperature(g: _Grid, Is_g, window, it: _Iteration, V_p, psi, oml_cylinder, windows):
+    """Refine V_f, the ion line and T_e together, at most four rounds, until T_e moves by
+    less than 0.1 %. ``windows`` (the result's) receives the V_f, ion and T_e windows."""
+    dV = g.dV
+    for _ in range(4):
+        if it.cross.size and math.isfinite(it.T_e) and it.T_e > 0:
+            # the current near V_f is an exponential on the scale T_e: a cubic over
+            # V_f +- T_e follows it closely and averages the noise down
+            w_f = min(max(window, odd(2.0 * it.T_e / dV)), g.max_window)
+            it.V_f, _, it.cross = _floating(g.Vg, savgol(g.Ig, w_f))
+            it.vf_flags = _floating_flags(it.cross)
+            windows["V_f"] = (it.V_f - (w_f // 2) * dV, it.V_f + (w_f // 2) * dV)
+        it.ion, it.ion_flags, windows["ion"] = _ion_line(g.V, g.I, it.V_f, it.T_e, oml_cylinder)
+        it.I_is = float(-it.ion(it.V_f))
+        T_new, it.T_e_se, it.te_flags, te_window = _temperature(g, Is_g, it.ion, it.V_f, V_p, it.T_e)
+        if te_window is not None:
+            windows["T_e"] = te_window
+        if not math.isfinite(T_new):
+            it.te_flags.append("te_from_vf_vp")
+            T_new = (V_p - it.V_f) / psi if V_p > it.V_f else float("nan")
+            it.T_e_se = float("nan")
+        converged = math.isfinite(T_new) and abs(T_new - it.T_e) <= 1e-3 * T_new
+        it.T_e = T_new
+        if converged or not math.isfinite(it.T_e):
+            break
+    return it
+
+
+def _ion_density(result, config, I_is, T_e, V_p, V_f, Is_g, Vg):
+    """n_i from the Bohm flux at V_f (step 5); sets ``result.I_is``, ``result.n_i`` and flags."""
+    flags, probe, area, M, f_B = result.flags, config.probe, config.probe.area, config.ion_mass_kg, config.bohm_factor
+    if not I_is > 0:
+        # the extrapolated line is useless (electron current in the ion window);
+        # the most negative current seen below V_f is a lower bound on I_is
+        below = Is_g[Vg <= V_f]
+        I_is = float(-below.min()) if below.size else float("nan")
+        flags.append("ion_current_not_negative")
+        result.I_is = I_is
+    if math.isfinite(T_e) and T_e > 0 and I_is > 0:
+        result.n_i = float(I_is / (f_B * E_CHARGE * area * math.sqrt(E_CHARGE * T_e / M)))
+        if config.sheath_expansion or config.ion_collection != "thin-sheath":
+            # Bohm flux through the bare probe area: say so when the Child-law sheath at
+            # V_f would grow the collecting area by more than 10 %
+            s = float(child_sheath_thickness(max(V_p - V_f, 0.0), result.n_i, T_e))
+            ratio = 1.0 + s / probe.radius
+            if (ratio if probe.geometry == "cylindrical" else ratio * ratio) > 1.1:
+                flags.append("thick_sheath")
 
 
 # ----------------------------------------------------------------------------- analysis
@@ -297,218 +457,55 @@ def classical_analysis(voltage, current, config: ModelConfig) -> ClassicalResult
         raise ValueError("voltage and current must be 1-D arrays of the same length")
     result = ClassicalResult()
     flags = result.flags
-    good = np.isfinite(V) & np.isfinite(I)
-    V, I = _merge_duplicates(V[good], I[good])
+    V, I = clean_sweep(V, I)
     if V.size < _MIN_POINTS or not V[-1] > V[0]:
         flags.append("too_few_points")
         return result
-
     probe = config.probe
-    area = probe.area
-    M = config.ion_mass_kg
-    f_B = config.bohm_factor
-    psi = planar_floating_drop(M, f_B)
+    psi = planar_floating_drop(config.ion_mass_kg, config.bohm_factor)
     oml_cylinder = probe.geometry == "cylindrical" and config.ion_collection in ("oml", "auto")
+    g = _Grid.of(V, I)
 
-    # uniform grid for the Savitzky-Golay filters
-    n = V.size
-    Vg = np.linspace(V[0], V[-1], n)
-    dV = Vg[1] - Vg[0]
-    Ig = np.interp(Vg, V, I)
-    sigma_g = _local_noise(Ig)
-    sigma = np.interp(V, Vg, sigma_g)
-
-    # ---- smoothing width: the narrowest window whose dI/dV noise is small at the knee
-    max_window = max(_MIN_WINDOW, _odd(n // 3) - 2)
-    candidates = sorted({min(_odd(w), max_window) for w in np.geomspace(_MIN_WINDOW, max_window, 14)})
-    deriv = d_sd = None
-    window = candidates[-1]
-    for w in candidates:
-        d = _smooth(Ig, w, deriv=1, delta=dV)
-        c = savgol_coeffs(w, _POLYORDER, deriv=1, delta=dV)
-        smooth_w = _smooth(Ig, w)
-        cross = _crossings(smooth_w)
-        lo = cross[-1] + 1 if cross.size else 0
-        peak = float(np.max(d[lo:]))
-        sd = float(np.max(sigma_g[lo:]) * np.linalg.norm(c))
-        deriv, d_sd, window, lo_knee = d, sd, w, lo
-        if peak > 0 and sd <= _KNEE_NOISE * peak:
-            break
-    else:
+    knee = _knee_filter(g)
+    if knee.noisy:
         flags.append("knee_noisy")
-    half_width = (window // 2) * dV
-    Is_g = _smooth(Ig, window)
-
-    # ---- 1. floating potential (first pass; refined below once T_e is known)
-    V_f, k_f, cross = _floating(Vg, Is_g)
-    vf_flags = _floating_flags(cross)
-
-    # ---- 3. plasma potential: the knee of the smoothed dI/dV above V_f
-    # The filter's end points (mode="interp") are noisier than its interior, so the
-    # last half-window is searched only if the maximum runs into it.
-    lo = min(lo_knee, n - 1) if cross.size else k_f
-    edge = n - 1 - window // 2
-    d = deriv[lo:edge + 1] if edge > lo else deriv[lo:]
-    k_max = int(np.argmax(d))
-    if lo + k_max >= edge:
-        d = deriv[lo:]
-        k_max = int(np.argmax(d))
-    j = lo + k_max
-    if probe.geometry == "spherical":
-        # dI/dV of a sphere stays flat above V_p: take where it first reaches the top
-        threshold = d[k_max] - 2.0 * d_sd
-        k_first = int(np.argmax(d >= threshold))
-        j = lo + k_first
-        if k_first > 0 and deriv[j] > deriv[j - 1]:
-            V_p = float(Vg[j - 1] + (threshold - deriv[j - 1]) / (deriv[j] - deriv[j - 1]) * dV)
-        else:
-            V_p = float(Vg[j])
-        at_end = False
-    else:
-        V_p = float(Vg[j])
-        if 0 < j < n - 1:                      # vertex of the parabola through the top three
-            y0, y1, y2 = deriv[j - 1], deriv[j], deriv[j + 1]
-            curv = y0 - 2.0 * y1 + y2
-            if curv < 0:
-                V_p += float(np.clip(0.5 * (y0 - y2) / curv, -0.5, 0.5)) * dV
-        at_end = j >= edge
+    half_width = (knee.window // 2) * g.dV
+    Is_g = savgol(g.Ig, knee.window)
+    V_f, k_f, cross = _floating(g.Vg, Is_g)            # first pass, refined once T_e is known
+    lo = min(knee.lo, V.size - 1) if cross.size else k_f
+    V_p, at_end = _plasma_potential(g, knee, lo, probe.geometry == "spherical")
     result.V_p = V_p
     result.windows["knee"] = (V_p - half_width, V_p + half_width)
 
-    # ---- 2 + 4. ion line and T_e, iterated
-    T_e = (V_p - V_f) / psi if V_p > V_f else (V[-1] - V[0]) / 20.0
-    T_e_se = float("nan")
-    ion_line = None
-    I_is = float("nan")
-    n_i_slope = None
-    for _ in range(4):
-        if cross.size and math.isfinite(T_e) and T_e > 0:
-            # the current near V_f is an exponential on the scale T_e: a cubic over
-            # V_f +- T_e follows it closely and averages the noise down
-            w_f = min(max(window, _odd(2.0 * T_e / dV)), max_window)
-            V_f, k_f, cross = _floating(Vg, _smooth(Ig, w_f))
-            vf_flags = _floating_flags(cross)
-            result.windows["V_f"] = (V_f - (w_f // 2) * dV, V_f + (w_f // 2) * dV)
-        ion_flags = []
-        hi = V_f - _ION_CLEARANCE * T_e
-        in_win = V <= hi
-        if np.count_nonzero(in_win) < _MIN_WINDOW:
-            hi = V[0] + 0.25 * (min(V_f, V[-1]) - V[0])
-            in_win = V <= hi
-        if np.count_nonzero(in_win) < _MIN_WINDOW:
-            ion_flags.append("ion_window_short")
-            in_win = np.zeros(n, bool)
-            in_win[:_MIN_WINDOW] = True
-            hi = float(V[_MIN_WINDOW - 1])
-        if hi > V_f - _ION_CLEARANCE * T_e:
-            ion_flags.append("ion_window_contaminated")
-        Vw, Iw = V[in_win], I[in_win]
-        n_i_slope = None
-        if oml_cylinder:
-            y = -Iw * np.abs(Iw)                    # I^2 where the current is negative
-            scale = float(np.max(np.abs(y))) or 1.0
-            a, b, x0, cov, chi2_red = _line_fit(Vw, y / scale)
-            a, b = a * scale, b * scale
-            if b < 0:
-                n_i_slope = b
-                ion_cov = cov * chi2_red * scale**2
-
-                def ion_line(v, a=a, b=b, x0=x0):
-                    return -np.sqrt(np.maximum(a + b * (np.asarray(v) - x0), 0.0))
-
-                def ion_jac(v, a=a, b=b, x0=x0):
-                    dx = np.asarray(v) - x0
-                    root = np.sqrt(np.maximum(a + b * dx, np.finfo(float).tiny))
-                    return np.column_stack([-0.5 / root, -0.5 * dx / root])
-            else:
-                ion_flags.append("ion_slope_wrong_sign")
-        if n_i_slope is None:
-            a, b, x0, cov, chi2_red = _line_fit(Vw, Iw)
-            ion_cov = cov * chi2_red
-
-            def ion_line(v, a=a, b=b, x0=x0):
-                return a + b * (np.asarray(v) - x0)
-
-            def ion_jac(v, x0=x0):
-                dx = np.asarray(v) - x0
-                return np.column_stack([np.ones_like(dx), dx])
-        result.windows["ion"] = (float(Vw[0]), float(hi))
-        I_is = float(-ion_line(V_f))
-
-        # electron current and the ln I_e fit
-        I_e = I - ion_line(V)
-        Ie_s = np.interp(V, Vg, Is_g) - ion_line(V)
-        te_flags = []
-        T_new = float("nan")
-        for lo_v, hi_v, tag in ((V_f, V_p - _KNEE_MARGIN * T_e, None), (V_f, V_p, "te_window_widened")):
-            sel = (V >= lo_v) & (V <= hi_v) & (I_e > 0) & (Ie_s > 0)
-            if np.count_nonzero(sel) >= _MIN_WINDOW:
-                if tag:
-                    te_flags.append(tag)
-                Vs = V[sel]
-                w = (Ie_s[sel] / sigma[sel]) ** 2
-                a_t, b_t, x0_t, cov, chi2_red = _line_fit(Vs, np.log(I_e[sel]), w)
-                result.windows["T_e"] = (float(lo_v), float(hi_v))
-                if b_t > 0:
-                    T_new = 1.0 / b_t
-                    # the slope is linear in ln I_e: b = g . y. The ion line's own
-                    # uncertainty moves every ln I_e by -delta(ion)/I_e; add its share.
-                    g = cov[1, 0] * w + cov[1, 1] * w * (Vs - x0_t)
-                    sens = g @ (-ion_jac(Vs) / Ie_s[sel, None])
-                    var_b = cov[1, 1] * max(chi2_red, 1.0) + float(sens @ ion_cov @ sens)
-                    T_e_se = float(np.sqrt(var_b)) / b_t**2
-                break
-        if not math.isfinite(T_new):
-            te_flags.append("te_from_vf_vp")
-            T_new = (V_p - V_f) / psi if V_p > V_f else float("nan")
-            T_e_se = float("nan")
-        converged = math.isfinite(T_new) and abs(T_new - T_e) <= 1e-3 * T_new
-        T_e = T_new
-        if converged or not math.isfinite(T_e):
-            break
+    T_start = (V_p - V_f) / psi if V_p > V_f else (V[-1] - V[0]) / 20.0
+    it = _iterate_ion_and_temperature(g, Is_g, knee.window,
+                                      _Iteration(V_f, cross, T_start, vf_flags=_floating_flags(cross)),
+                                      V_p, psi, oml_cylinder, result.windows)
+    V_f, T_e = it.V_f, it.T_e
     result.V_f = V_f
-    flags.extend(vf_flags)
+    flags.extend(it.vf_flags)
     if not V_p > V_f:
         flags.append("vp_below_vf")
-    flags.extend(ion_flags)
-    flags.extend(te_flags)
+    flags.extend(it.ion_flags)
+    flags.extend(it.te_flags)
     result.T_e = float(T_e)
-    result.T_e_se = float(T_e_se)
-
-    if math.isfinite(T_e) and T_e > 0:
-        if at_end or V[-1] - V_p < _KNEE_MARGIN * T_e:
-            flags.append("vp_at_sweep_end")
-        if half_width > 0.5 * T_e:
-            flags.append("heavy_smoothing")
-    elif at_end:
+    result.T_e_se = float(it.T_e_se)
+    T_ok = math.isfinite(T_e) and T_e > 0
+    if at_end or (T_ok and V[-1] - V_p < _KNEE_MARGIN * T_e):
         flags.append("vp_at_sweep_end")
+    if T_ok and half_width > 0.5 * T_e:
+        flags.append("heavy_smoothing")
 
     # ---- 5. densities
-    I_es = float(np.interp(V_p, Vg, Is_g) - ion_line(V_p))
+    I_es = float(np.interp(V_p, g.Vg, Is_g) - it.ion(V_p))
     result.I_es = I_es
-    result.I_is = I_is
-    T_ok = math.isfinite(T_e) and T_e > 0
+    result.I_is = it.I_is
     if T_ok and I_es > 0:
-        result.n_e = float(I_es / electron_saturation_current(1.0, T_e, area))
+        result.n_e = float(I_es / electron_saturation_current(1.0, T_e, probe.area))
     else:
         flags.append("n_e_failed")
-    if n_i_slope is not None:
-        result.n_i = float(oml_ion_density(n_i_slope, area, M))
-        return result
-    if not I_is > 0:
-        # the extrapolated line is useless (electron current in the ion window);
-        # the most negative current seen below V_f is a lower bound on I_is
-        below = Is_g[Vg <= V_f]
-        I_is = float(-below.min()) if below.size else float("nan")
-        flags.append("ion_current_not_negative")
-        result.I_is = I_is
-    if T_ok and I_is > 0:
-        result.n_i = float(I_is / (f_B * E_CHARGE * area * math.sqrt(E_CHARGE * T_e / M)))
-        if config.sheath_expansion or config.ion_collection != "thin-sheath":
-            # Bohm flux through the bare probe area: say so when the Child-law sheath at
-            # V_f would grow the collecting area by more than 10 %
-            s = float(child_sheath_thickness(max(V_p - V_f, 0.0), result.n_i, T_e))
-            ratio = 1.0 + s / probe.radius
-            if (ratio if probe.geometry == "cylindrical" else ratio * ratio) > 1.1:
-                flags.append("thick_sheath")
+    if it.ion.slope is not None:
+        result.n_i = float(oml_ion_density(it.ion.slope, probe.area, config.ion_mass_kg))
+    else:
+        _ion_density(result, config, it.I_is, T_e, V_p, V_f, Is_g, g.Vg)
     return result

@@ -21,15 +21,19 @@ T_eff = (2/3) <eps>, which equals T_e for a Maxwellian.
 from __future__ import annotations
 
 import math
+from collections import namedtuple
+from dataclasses import dataclass
 
 import numpy as np
 from scipy.integrate import trapezoid
 from scipy.interpolate import CubicSpline
-from scipy.ndimage import median_filter
-from scipy.signal import savgol_coeffs, savgol_filter
 
 from .physics.constants import E_CHARGE, M_E
+from .physics.electron_models import electron_model
 from .physics.formulary import maxwellian_eedf
+from .quantities import quantity
+from .signal_tools import (clean_sweep, difference_noise, saturation_window, savgol, savgol_noise_gain,
+                           savgol_noise_gains, upward_crossings, window_ladder)
 
 __all__ = ["model_eedf", "druyvesteyn_eedf", "maxwellian_eepf", "DRUYVESTEYN_PREFACTOR"]
 
@@ -37,7 +41,6 @@ __all__ = ["model_eedf", "druyvesteyn_eedf", "maxwellian_eepf", "DRUYVESTEYN_PRE
 #: f_p in m^-3 eV^-3/2 for A in m^2 and d^2I/dV^2 in A/V^2).
 DRUYVESTEYN_PREFACTOR = 2.0 / E_CHARGE * math.sqrt(2.0 * M_E / E_CHARGE)
 
-_POLYORDER = 3          # Savitzky-Golay polynomial order (a cubic follows the exponential closely)
 _MIN_WINDOW = 5         # smallest window a cubic filter allows
 _FIRST_WINDOW = 7       # smallest window tried when the window is chosen from the noise
 _NOISE_TARGET = 0.05    # chosen window: noise of d2I/dV2 at most this fraction of its peak
@@ -65,14 +68,37 @@ def maxwellian_eepf(energy, n_e, T_e):
     return n * 2.0 / math.sqrt(math.pi) * T ** -1.5 * np.exp(-eps / T)
 
 
-_MODEL_NAMES = {"maxwellian": ("n_e", "T_e"),
-                "bi-maxwellian": ("n_e", "T_e_cold", "T_e_hot", "hot_fraction")}
-
-
 def _thin(total: int, k: int) -> np.ndarray:
     if k >= total:
         return np.arange(total)
     return np.unique(np.linspace(0, total - 1, k).round().astype(int))
+
+
+def _physical(flat) -> np.ndarray:
+    """Draws whose values are finite and inside their parameter's range: (0, 1) bounds
+    for logit-transformed quantities (closed), positive for log-transformed ones."""
+    ok = np.all([np.isfinite(x) for x in flat.values()], axis=0)
+    ok &= np.all([flat[n] > 0 for n in flat if quantity(n).transform != "logit"], axis=0)
+    for n in flat:
+        if quantity(n).transform == "logit":
+            ok &= (flat[n] >= 0) & (flat[n] <= 1)
+    return ok
+
+
+def _maxwellian_mixture(electrons, p, eps):
+    """g (m^-3 eV^-1) and f_p (m^-3 eV^-3/2), shape (k, m), of the draws ``p`` at energies ``eps``.
+
+    One Maxwellian, or (two-temperature model) (1 - a) of the cold group plus a of the hot one.
+    """
+    n_e = p["n_e"][:, None]
+    if not electrons.two_temperature:
+        T = electrons.effective_temperature(p)[:, None]
+        return maxwellian_eedf(eps, n_e, T), maxwellian_eepf(eps, n_e, T)
+    a = p["hot_fraction"][:, None]
+    Tc, Th = p["T_e_cold"][:, None], p["T_e_hot"][:, None]
+    g = (1.0 - a) * maxwellian_eedf(eps, n_e, Tc) + a * maxwellian_eedf(eps, n_e, Th)
+    fp = (1.0 - a) * maxwellian_eepf(eps, n_e, Tc) + a * maxwellian_eepf(eps, n_e, Th)
+    return g, fp
 
 
 def model_eedf(result, energy=None, *, n_draws=400) -> dict:
@@ -106,9 +132,11 @@ def model_eedf(result, energy=None, *, n_draws=400) -> dict:
     if not isinstance(draws, dict) or config is None:
         raise ValueError("result must be a FitResult (with .draws and .config)")
     model = getattr(config, "electrons", None)
-    if model not in _MODEL_NAMES:
-        raise ValueError(f"result: unsupported electron model {model!r}")
-    names = _MODEL_NAMES[model]
+    try:
+        electrons = electron_model(model)
+    except ValueError:
+        raise ValueError(f"result: unsupported electron model {model!r}") from None
+    names = ("n_e", *electrons.parameter_names)
     missing = [n for n in names if n not in draws]
     if missing:
         raise ValueError(f"result has no posterior draws of {', '.join(missing)}")
@@ -122,18 +150,14 @@ def model_eedf(result, energy=None, *, n_draws=400) -> dict:
     sizes = {x.size for x in flat.values()}
     if len(sizes) != 1:
         raise ValueError("result: the posterior draws of " + ", ".join(names) + " differ in size")
-    ok = np.all([np.isfinite(x) for x in flat.values()], axis=0)
-    ok &= np.all([flat[n] > 0 for n in names if n != "hot_fraction"], axis=0)
-    if "hot_fraction" in flat:
-        ok &= (flat["hot_fraction"] >= 0) & (flat["hot_fraction"] <= 1)
-    good = np.flatnonzero(ok)
+    good = np.flatnonzero(_physical(flat))
     if good.size == 0:
         raise ValueError("result has no finite, physical posterior draws of " + ", ".join(names))
     idx = good[_thin(good.size, int(n_draws))]
     p = {n: flat[n][idx] for n in names}
 
     if energy is None:
-        T_top = float(np.median(p["T_e"] if model == "maxwellian" else p["T_e_hot"]))
+        T_top = float(np.median(electrons.hottest_temperature(p)))
         eps = np.linspace(0.05, 8.0 * T_top, _MODEL_GRID)
     else:
         eps = np.asarray(energy, float)
@@ -142,73 +166,24 @@ def model_eedf(result, energy=None, *, n_draws=400) -> dict:
         if np.any(~np.isfinite(eps)) or np.any(eps < 0):
             raise ValueError("energy must be finite and non-negative (eV)")
 
-    n_e = p["n_e"][:, None]
-    if model == "maxwellian":
-        T = p["T_e"][:, None]
-        g = maxwellian_eedf(eps, n_e, T)
-        fp = maxwellian_eepf(eps, n_e, T)
-    else:
-        a = p["hot_fraction"][:, None]
-        Tc, Th = p["T_e_cold"][:, None], p["T_e_hot"][:, None]
-        g = (1.0 - a) * maxwellian_eedf(eps, n_e, Tc) + a * maxwellian_eedf(eps, n_e, Th)
-        fp = (1.0 - a) * maxwellian_eepf(eps, n_e, Tc) + a * maxwellian_eepf(eps, n_e, Th)
+    g, fp = _maxwellian_mixture(electrons, p, eps)
     tail = 0.5 * (1.0 - level)
     qg = np.quantile(g, [tail, 0.5, 1.0 - tail], axis=0)
     qf = np.quantile(fp, [tail, 0.5, 1.0 - tail], axis=0)
     return {"energy_eV": eps, "median": qg[1], "low": qg[0], "high": qg[2],
             "eepf_median": qf[1], "eepf_low": qf[0], "eepf_high": qf[2],
             "samples": g, "parameters": p, "draw_index": idx, "credible_level": level,
-            "model": model,
+            "model": electrons.name,
             "units": {"energy_eV": "eV", "eedf": "m^-3 eV^-1", "eepf": "m^-3 eV^-3/2"}}
 
 
 # ----------------------------------------------------------------------------- model-free side
 
-def _odd(k) -> int:
-    k = int(k)
-    return k if k % 2 else k + 1
-
-
-def _local_noise(y):
-    """Local noise sd of ``y`` on a uniform grid, from third differences.
-
-    r_k = (y[k+2] - 3 y[k+1] + 3 y[k] - y[k-1]) / sqrt(20) has the sd of white
-    noise and removes any quadratic trend; a running median of |r| (times
-    1.4826, the normal MAD factor) follows slowly varying noise.
-    """
-    r = np.diff(y, 3) / math.sqrt(20.0)
-    r = np.pad(r, (1, 2), mode="edge")
-    span = _odd(max(15, y.size // 20))
-    sd = 1.4826 * median_filter(np.abs(r), size=span, mode="nearest")
-    floor = max(1e-15 * float(np.max(np.abs(y))), np.finfo(float).tiny)
-    return np.maximum(sd, floor)
-
-
-def _coefficient_norms(n, window, delta):
-    """Noise gain ||c|| of the second-derivative filter at each of ``n`` grid points.
-
-    Interior points use the centred coefficients; the first and last half-window
-    use the one-sided fits of ``mode="interp"``.
-    """
-    m = window // 2
-    norms = np.full(n, np.linalg.norm(savgol_coeffs(window, _POLYORDER, deriv=2, delta=delta, use="dot")))
-    for j in range(m):
-        norms[j] = np.linalg.norm(savgol_coeffs(window, _POLYORDER, deriv=2, delta=delta, pos=j, use="dot"))
-        norms[n - 1 - j] = np.linalg.norm(savgol_coeffs(window, _POLYORDER, deriv=2, delta=delta,
-                                                        pos=window - 1 - j, use="dot"))
-    return norms
-
-
-def _second_derivative(y, window, delta):
-    return savgol_filter(y, window, _POLYORDER, deriv=2, delta=delta, mode="interp")
-
-
-def _windows(n, delta, lowest=_FIRST_WINDOW):
+def _windows(n, lowest=_FIRST_WINDOW):
     """Candidate odd window lengths from ``lowest`` to about n/3, geometrically spaced."""
     largest_odd = lambda k: k if k % 2 else k - 1  # noqa: E731
     top = min(max(_FIRST_WINDOW, largest_odd(n // 3)), largest_odd(n))
-    lowest = min(lowest, top)
-    return sorted({min(_odd(w), top) for w in np.geomspace(lowest, top, 24)})
+    return window_ladder(min(lowest, top), top, 24)
 
 
 def _choose_window(Vg, Ie, V_p, area, delta, sigma, flags):
@@ -228,19 +203,19 @@ def _choose_window(Vg, Ie, V_p, area, delta, sigma, flags):
     Ib, sb = Ie[below], sigma[below]
     n = Ib.size
     pilot = None
-    for w in _windows(n, delta):
+    for w in _windows(n):
         m = w // 2
-        d2 = _second_derivative(Ib, w, delta)[m:n - m]
+        d2 = savgol(Ib, w, 2, delta)[m:n - m]
         if d2.size == 0:
             break
         k = int(np.argmax(d2))
-        gain = np.linalg.norm(savgol_coeffs(w, _POLYORDER, deriv=2, delta=delta, use="dot"))
+        gain = savgol_noise_gain(w, 2, delta)
         if d2[k] > 0 and sb[m + k] * gain <= _NOISE_TARGET * d2[k]:
             pilot = w
             break
     if pilot is None:
         flags.append("noisy_second_derivative")
-        return _windows(n, delta)[-1]
+        return _windows(n)[-1]
     U, _, fp, _, fp_sd = _druyvesteyn_core(Vg, Ie, V_p, area, pilot, delta, sigma)
     pos = fp > 0
     T_s = math.nan
@@ -252,7 +227,7 @@ def _choose_window(Vg, Ie, V_p, area, delta, sigma, flags):
         flags.append("no_energy_scale")
         return pilot
     chosen = pilot
-    for w in _windows(n, delta, pilot):
+    for w in _windows(n, pilot):
         if (w // 2) * delta > 0.5 * T_s:
             break
         chosen = w
@@ -264,8 +239,9 @@ def _choose_window(Vg, Ie, V_p, area, delta, sigma, flags):
     return chosen
 
 
-def _line_fit(x, y):
-    """Least-squares straight line; returns (intercept at x0, slope, x0)."""
+def _polyfit_line(x, y):
+    """Least-squares straight line by ``np.polyfit`` (not :func:`signal_tools.line_fit`, whose
+    normal equations differ in the last digits); returns (intercept at x0, slope, x0)."""
     x0 = float(np.mean(x))
     b, a = np.polyfit(x - x0, y, 1)
     return float(a), float(b), x0
@@ -275,8 +251,8 @@ def _druyvesteyn_core(Vg, Ie, V_p, area, window, delta, sigma):
     """EEDF and EEPF below V_p from the electron current on the uniform grid ``Vg``."""
     below = Vg < V_p
     Vb, Ib, sb = Vg[below], Ie[below], sigma[below]
-    d2 = _second_derivative(Ib, window, delta)
-    sd = sb * _coefficient_norms(Ib.size, window, delta)
+    d2 = savgol(Ib, window, 2, delta)
+    sd = sb * savgol_noise_gains(Ib.size, window, 2, delta)
     # ascending energy: reverse the bias order
     U = (V_p - Vb)[::-1]
     d2, sd = d2[::-1], sd[::-1]
@@ -315,27 +291,141 @@ def _moments(U, g, from_zero):
 def _ion_window(V, V_f, T_eff, V_p, flags):
     """Biases of the ion-saturation fit: V <= V_f - 3 T_eff (electrons there carry
     less than e^-3 of the ion current), else the lowest quarter below V_f (or V_p)."""
-    win = np.zeros(V.size, bool)
-    if V_f is not None and math.isfinite(T_eff):
-        win = V <= V_f - _ION_CLEARANCE * T_eff
-    if np.count_nonzero(win) < _MIN_WINDOW:
-        top = V_f if V_f is not None else V_p
-        win = V <= V[0] + 0.25 * (top - V[0])
+    known = V_f is not None and math.isfinite(T_eff)
+    limit = V_f - _ION_CLEARANCE * T_eff if known else math.nan
+    win, _, stage = saturation_window(V, limit, V_f if V_f is not None else V_p, _MIN_WINDOW)
+    if stage > 0:
         flags.append("ion_window_short")
-    if np.count_nonzero(win) < _MIN_WINDOW:
-        win = np.zeros(V.size, bool)
-        win[:_MIN_WINDOW] = True
     return win
 
 
 def _ion_fit(V, I, mode):
     """("line" | "oml-square", function giving the ion current magnitude I_i(V) >= 0)."""
     if mode == "oml":
-        a, b, x0 = _line_fit(V, -I * np.abs(I))          # I_i^2 where the current is negative
+        a, b, x0 = _polyfit_line(V, -I * np.abs(I))          # I_i^2 where the current is negative
         if b < 0:
             return "oml-square", lambda v: np.sqrt(np.maximum(a + b * (np.asarray(v) - x0), 0.0))
-    a, b, x0 = _line_fit(V, I)
+    a, b, x0 = _polyfit_line(V, I)
     return "line", lambda v: -(a + b * (np.asarray(v) - x0))
+
+
+def _number(x, name, unit) -> float:
+    try:
+        return float(x)
+    except (TypeError, ValueError):
+        raise ValueError(f"{name} must be a number ({unit}), got {x!r}") from None
+
+
+def _checked_inputs(voltage, current, V_p, area, ion_current, smoothing):
+    """Validate the arguments of :func:`druyvesteyn_eedf`.
+
+    Returns (V, I, V_p, area, ion_mode, ion_given): ion_mode "line", "oml" or "given".
+    """
+    V = np.asarray(voltage, dtype=float)
+    I = np.asarray(current, dtype=float)
+    if V.ndim != 1:
+        raise ValueError("voltage must be a 1-D array of biases in V")
+    if I.shape != V.shape:
+        raise ValueError(f"current must have the shape of voltage {V.shape}, got {I.shape}")
+    V_p = _number(V_p, "V_p", "V")
+    if not math.isfinite(V_p):
+        raise ValueError(f"V_p must be finite, got {V_p!r}")
+    area = _number(area, "area", "m^2")
+    if not (math.isfinite(area) and area > 0):
+        raise ValueError(f"area must be positive and finite (m^2), got {area!r}")
+    ion_mode = "line"
+    ion_given = None
+    if isinstance(ion_current, str):
+        if ion_current != "oml":
+            raise ValueError(f"ion_current must be None, 'oml' or an array, got {ion_current!r}")
+        ion_mode = "oml"
+    elif ion_current is not None:
+        ion_given = np.asarray(ion_current, dtype=float)
+        if ion_given.shape != V.shape:
+            raise ValueError(f"ion_current must have the shape of voltage {V.shape}, got {ion_given.shape}")
+        if np.any(~np.isfinite(ion_given)) or np.any(ion_given < 0):
+            raise ValueError("ion_current must be the finite ion current magnitude I_i >= 0 (A)")
+        ion_mode = "given"
+    if smoothing is not None:
+        if isinstance(smoothing, bool) or not isinstance(smoothing, (int, np.integer)) \
+                or smoothing < _MIN_WINDOW or smoothing % 2 == 0:
+            raise ValueError(f"smoothing must be an odd window length >= {_MIN_WINDOW} points, "
+                             f"got {smoothing!r}")
+    return V, I, V_p, area, ion_mode, ion_given
+
+
+#: one Druyvesteyn estimate from a given electron current (window in points, energies,
+#: EEDF, EEPF, their noise sd, the moments n_e and T_eff, and the window-choice flags)
+_Estimate = namedtuple("_Estimate", "window U g fp g_sd fp_sd n_e T_eff flags")
+
+
+@dataclass
+class _RetardingGrid:
+    """The distinct biases below V_p, on a uniform grid (resampled by a cubic spline if
+    they are not evenly spaced), with the settings of the estimate."""
+
+    under: np.ndarray       # mask of the sorted biases below V_p
+    Vb: np.ndarray          # those biases
+    Vg: np.ndarray          # uniform grid over them, as many points
+    delta: float            # its step (V)
+    uniform: bool           # Vg is Vb
+    V_p: float
+    area: float
+    smoothing: int | None
+    from_zero: bool         # add the piece of the integrals below the first energy
+    sigma: np.ndarray | None = None     # noise sd of the current on Vg
+
+    @classmethod
+    def of(cls, Vs, V_p, area, smoothing):
+        under = Vs < V_p
+        Vb = Vs[under]
+        step = np.diff(Vb)
+        uniform = bool(np.allclose(step, step.mean(), rtol=1e-6, atol=0.0))
+        Vg = Vb if uniform else np.linspace(Vb[0], Vb[-1], Vb.size)
+        delta = float(Vg[1] - Vg[0])
+        return cls(under, Vb, Vg, delta, uniform, V_p, area, smoothing, not V_p > Vs[-1] + 0.5 * delta)
+
+    def resample(self, y):
+        """Values at the sorted biases -> values on the grid."""
+        return y[self.under] if self.uniform else CubicSpline(self.Vb, y[self.under])(self.Vg)
+
+    def estimate(self, I_e_grid) -> _Estimate:
+        """EEDF, EEPF and their moments from the electron current on the grid."""
+        window_flags = []
+        w = int(self.smoothing) if self.smoothing is not None else \
+            _choose_window(self.Vg, I_e_grid, self.V_p, self.area, self.delta, self.sigma, window_flags)
+        U, g, fp, g_sd, fp_sd = _druyvesteyn_core(self.Vg, I_e_grid, self.V_p, self.area, w, self.delta,
+                                                  self.sigma)
+        n_e, T_eff = _moments(U, g, self.from_zero)
+        return _Estimate(w, U, g, fp, g_sd, fp_sd, n_e, T_eff, window_flags)
+
+
+def _with_fitted_ion_line(grid: _RetardingGrid, Vs, Is, Ig, ion_mode, flags):
+    """Estimate with the ion current removed by a line fitted below V_f - 3 T_eff (step 2).
+
+    A straight line leaves d2I/dV2 unchanged, so the first estimate (ion current left in)
+    gives T_eff and V_f; an I^2 line ("oml") is subtracted and the estimate repeated, at
+    most four times, until T_eff moves by less than 1e-4. Returns (estimate, I_i at the
+    sorted biases, "line" or "oml-square").
+    """
+    out = grid.estimate(Ig)
+    cross = upward_crossings(savgol(Ig, out.window))
+    V_f = float(grid.Vg[cross[-1] + 1]) if cross.size else None
+    if V_f is None:
+        flags.append("vf_not_bracketed")
+    for _ in range(4 if ion_mode == "oml" else 1):
+        win = _ion_window(Vs, V_f, out.T_eff, grid.V_p, flags)
+        kind, ion_fn = _ion_fit(Vs[win], Is[win], ion_mode)
+        if kind == "line" and ion_mode == "oml":
+            flags.append("ion_slope_wrong_sign")
+        ion_on_data = ion_fn(Vs)
+        if kind == "line":
+            break
+        T_old = out.T_eff
+        out = grid.estimate(Ig + ion_fn(grid.Vg))
+        if not abs(out.T_eff - T_old) > 1e-4 * abs(out.T_eff):
+            break
+    return out, ion_on_data, kind
 
 
 def druyvesteyn_eedf(voltage, current, V_p, area, *, ion_current=None, smoothing=None) -> dict:
@@ -422,120 +512,36 @@ def druyvesteyn_eedf(voltage, current, V_p, area, *, ion_current=None, smoothing
         ``no_energy_scale`` (the pilot EEPF does not fall with energy),
         ``heavy_smoothing`` (h > T_s/2), ``no_usable_range``.
     """
-    V = np.asarray(voltage, dtype=float)
-    I = np.asarray(current, dtype=float)
-    if V.ndim != 1:
-        raise ValueError("voltage must be a 1-D array of biases in V")
-    if I.shape != V.shape:
-        raise ValueError(f"current must have the shape of voltage {V.shape}, got {I.shape}")
-    try:
-        V_p = float(V_p)
-    except (TypeError, ValueError):
-        raise ValueError(f"V_p must be a number (V), got {V_p!r}") from None
-    if not math.isfinite(V_p):
-        raise ValueError(f"V_p must be finite, got {V_p!r}")
-    try:
-        area = float(area)
-    except (TypeError, ValueError):
-        raise ValueError(f"area must be a number (m^2), got {area!r}") from None
-    if not (math.isfinite(area) and area > 0):
-        raise ValueError(f"area must be positive and finite (m^2), got {area!r}")
-    ion_mode = "line"
-    ion_given = None
-    if isinstance(ion_current, str):
-        if ion_current != "oml":
-            raise ValueError(f"ion_current must be None, 'oml' or an array, got {ion_current!r}")
-        ion_mode = "oml"
-    elif ion_current is not None:
-        ion_given = np.asarray(ion_current, dtype=float)
-        if ion_given.shape != V.shape:
-            raise ValueError(f"ion_current must have the shape of voltage {V.shape}, got {ion_given.shape}")
-        if np.any(~np.isfinite(ion_given)) or np.any(ion_given < 0):
-            raise ValueError("ion_current must be the finite ion current magnitude I_i >= 0 (A)")
-        ion_mode = "given"
-    if smoothing is not None:
-        if isinstance(smoothing, bool) or not isinstance(smoothing, (int, np.integer)) \
-                or smoothing < _MIN_WINDOW or smoothing % 2 == 0:
-            raise ValueError(f"smoothing must be an odd window length >= {_MIN_WINDOW} points, "
-                             f"got {smoothing!r}")
-
-    good = np.isfinite(V) & np.isfinite(I)
-    order = np.argsort(V[good], kind="stable")
-    Vs, Is = V[good][order], I[good][order]
-    Ii = ion_given[good][order] if ion_given is not None else None
-    Vu, inverse, counts = np.unique(Vs, return_inverse=True, return_counts=True)
-    if Vu.size != Vs.size:
-        Is = np.bincount(inverse, weights=Is) / counts
-        if Ii is not None:
-            Ii = np.bincount(inverse, weights=Ii) / counts
-        Vs = Vu
+    V, I, V_p, area, ion_mode, ion_given = _checked_inputs(voltage, current, V_p, area, ion_current,
+                                                           smoothing)
+    Vs, Is, *given = clean_sweep(V, I, *(() if ion_given is None else (ion_given,)))
     if np.count_nonzero(Vs < V_p) < _MIN_POINTS:
         raise ValueError(f"voltage: fewer than {_MIN_POINTS} distinct finite biases lie below "
                          f"V_p = {V_p:g} V")
-
     # uniform grid over the biases below V_p (the knee never enters an interpolant)
-    under = Vs < V_p
-    Vb = Vs[under]
-    step = np.diff(Vb)
-    uniform = bool(np.allclose(step, step.mean(), rtol=1e-6, atol=0.0))
-    Vg = Vb if uniform else np.linspace(Vb[0], Vb[-1], Vb.size)
-    delta = float(Vg[1] - Vg[0])
-
-    def resample(y):
-        return y[under] if uniform else CubicSpline(Vb, y[under])(Vg)
-
-    Ig = resample(Is)
-    sigma = _local_noise(Ig)
-    if smoothing is not None and smoothing > Vg.size:
-        raise ValueError(f"smoothing ({smoothing}) exceeds the {Vg.size} biases below V_p")
-    flags = []
-    beyond = V_p > Vs[-1] + 0.5 * delta
-    if beyond:
-        flags.append("vp_beyond_sweep")
-
-    def estimate(I_e_grid):
-        window_flags = []
-        w = int(smoothing) if smoothing is not None else \
-            _choose_window(Vg, I_e_grid, V_p, area, delta, sigma, window_flags)
-        U, g, fp, g_sd, fp_sd = _druyvesteyn_core(Vg, I_e_grid, V_p, area, w, delta, sigma)
-        n_e, T_eff = _moments(U, g, not beyond)
-        return w, U, g, fp, g_sd, fp_sd, n_e, T_eff, window_flags
-
+    grid = _RetardingGrid.of(Vs, V_p, area, smoothing)
+    Ig = grid.resample(Is)
+    grid.sigma = difference_noise(Ig)
+    if smoothing is not None and smoothing > grid.Vg.size:
+        raise ValueError(f"smoothing ({smoothing}) exceeds the {grid.Vg.size} biases below V_p")
+    flags = [] if grid.from_zero else ["vp_beyond_sweep"]
     if ion_mode == "given":
-        ion_on_data = Ii
-        out = estimate(Ig + resample(Ii))
+        ion_on_data = given[0]
+        out = grid.estimate(Ig + grid.resample(given[0]))
     elif np.all(Is >= 0):
         ion_mode, ion_on_data = "none", np.zeros_like(Vs)
         flags.append("no_ion_current")
-        out = estimate(Ig)
+        out = grid.estimate(Ig)
     else:
-        out = estimate(Ig)                   # a straight ion line leaves d2I/dV2 unchanged
-        s_I = savgol_filter(Ig, out[0], _POLYORDER, mode="interp")
-        cross = np.flatnonzero((s_I[:-1] < 0) & (s_I[1:] >= 0))
-        V_f = float(Vg[cross[-1] + 1]) if cross.size else None
-        if V_f is None:
-            flags.append("vf_not_bracketed")
-        for _ in range(4 if ion_mode == "oml" else 1):
-            win = _ion_window(Vs, V_f, out[7], V_p, flags)
-            kind, ion_fn = _ion_fit(Vs[win], Is[win], ion_mode)
-            if kind == "line" and ion_mode == "oml":
-                flags.append("ion_slope_wrong_sign")
-            ion_on_data = ion_fn(Vs)
-            if kind == "line":
-                break
-            T_old = out[7]
-            out = estimate(Ig + ion_fn(Vg))
-            if not abs(out[7] - T_old) > 1e-4 * abs(out[7]):
-                break
-        ion_mode = kind
-    w, U, g, fp, g_sd, fp_sd, n_e, T_eff, window_flags = out
-    flags += window_flags
+        out, ion_on_data, ion_mode = _with_fitted_ion_line(grid, Vs, Is, Ig, ion_mode, flags)
+    U, w, delta = out.U, out.window, grid.delta
+    flags += out.flags
     if U.size < 2:
         flags.append("no_usable_range")
     flags = list(dict.fromkeys(flags))
-    return {"energy_eV": U, "eedf": g, "eepf": fp, "eedf_sd": g_sd, "eepf_sd": fp_sd,
-            "n_e": n_e, "T_eff": T_eff,
+    return {"energy_eV": U, "eedf": out.g, "eepf": out.fp, "eedf_sd": out.g_sd, "eepf_sd": out.fp_sd,
+            "n_e": out.n_e, "T_eff": out.T_eff,
             "energy_range": (float(U[0]), float(U[-1])) if U.size else (math.nan, math.nan),
             "window": int(w), "window_V": float((w - 1) * delta), "grid_step": delta,
-            "resampled": not uniform, "ion_fit": ion_mode, "voltage": Vs, "ion_current": ion_on_data,
+            "resampled": not grid.uniform, "ion_fit": ion_mode, "voltage": Vs, "ion_current": ion_on_data,
             "flags": flags}
