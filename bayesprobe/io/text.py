@@ -271,10 +271,14 @@ class DelimitedTable:
         """
         ks = [self.column_index(c) for c in columns]
         sl = rows if rows is not None else slice(None)
+        block = self._rows[sl]
+        if not block:
+            return [np.empty(0) for _ in ks]
         if not self.quoted:
-            table = _fast_table(self._rows[sl], self.delimiter, len(self.header))
+            table = _fast_table(block, self.delimiter, len(self.header))
             if table is not None:
                 return [np.ascontiguousarray(table[:, k]) for k in ks]
+        del block
         texts = self.strings(ks, rows=rows)
         line_numbers = self.line_numbers[sl]
         out = []
