@@ -38,22 +38,21 @@ _FAST_MAX_COLUMNS = 16
 # --------------------------------------------------------------------------
 
 
-def _decode_text(data: bytes, where: str) -> str:
+def _decode_text(data: bytes, where: str, subject: str = "sweep") -> str:
+    """Decode untrusted bytes: UTF-16 with a byte-order mark, else UTF-8 (BOM allowed), else Windows-1252."""
+    binary = (f"{where} is not a text file (it contains binary data); export the {subject} as CSV text"
+              + (" or save it as .npy" if subject == "sweep" else ""))
     if data[:2] in (b"\xff\xfe", b"\xfe\xff"):
         # UTF-16 with a byte-order mark, as some spreadsheet programs export
         try:
             text = data.decode("utf-16")
         except UnicodeDecodeError:
-            raise _fail(f"{where} is not valid UTF-16 text; export the sweep as UTF-8 CSV text") from None
+            raise _fail(f"{where} is not valid UTF-16 text; export the {subject} as UTF-8 CSV text") from None
         if re.search(r"[\x00-\x08\x0e-\x1f\x7f]", text):
-            raise _fail(
-                f"{where} is not a text file (it contains binary data); export the sweep as CSV text or save it as .npy"
-            )
+            raise _fail(binary)
         return text.lstrip("\ufeff")
     if data.translate(None, _TEXT_BYTES):
-        raise _fail(
-            f"{where} is not a text file (it contains binary data); export the sweep as CSV text or save it as .npy"
-        )
+        raise _fail(binary)
     try:
         return data.decode("utf-8-sig")
     except UnicodeDecodeError:
@@ -64,7 +63,7 @@ def _decode_text(data: bytes, where: str) -> str:
     except UnicodeDecodeError:
         raise _fail(
             f"{where} is neither UTF-8 nor Windows-1252 text (it looks like binary data); "
-            f"export the sweep as UTF-8 CSV text"
+            f"export the {subject} as UTF-8 CSV text"
         ) from None
 
 
@@ -351,7 +350,9 @@ def read_delimited_table(
         Largest file (or byte string) accepted.
     subject : str
         What one file holds, for the messages (``"... the limit for one sweep; split it into
-        separate sweep files"``).
+        separate sweep files"``, ``"export the sweep as UTF-8 CSV text"``).  A file *path* is
+        checked with the sweep-file wording; a caller with its own wording checks and reads the
+        file itself and passes the bytes.
 
     Returns
     -------
@@ -375,7 +376,7 @@ def read_delimited_table(
         where = _show(str(path), 120) if where is None else where
         _check_file(path, max_bytes)
         data = _read_bytes(path, max_bytes)
-    text = _decode_text(data, where)
+    text = _decode_text(data, where, subject)
     del data
     lines, numbers = _data_lines(text, where, max_rows, subject)
     del text
