@@ -1,0 +1,62 @@
+"""Writing tables as CSV files, atomically: any table (:func:`write_csv`) and one sweep
+(:func:`write_sweep_csv`, in its recorded order so a re-read finds both sweep directions)."""
+from __future__ import annotations
+
+import csv
+import io as _io
+from pathlib import Path
+from typing import Sequence
+
+import numpy as np
+
+from ..sweep import Sweep
+from .atomic import atomic_write_text
+
+__all__ = ["write_csv", "write_sweep_csv"]
+
+
+def write_csv(path, header: Sequence[str], rows, *, comments: Sequence[str] = ()) -> Path:
+    """Write a CSV table atomically: optional ``# `` comment lines, one header row, then ``rows``
+    (sequences of values; None is written as an empty field, floats with ``repr`` so they read
+    back exactly)."""
+    buf = _io.StringIO()
+    for line in comments:
+        buf.write(("# " + str(line)).rstrip() + "\n")
+    w = csv.writer(buf, lineterminator="\n")
+    w.writerow(list(header))
+    for row in rows:
+        w.writerow(["" if v is None else (repr(float(v)) if isinstance(v, (float, np.floating)) else v)
+                    for v in row])
+    return atomic_write_text(path, buf.getvalue())
+
+
+def write_sweep_csv(path, sweep_or_arrays, *, header_comment: str | None = None) -> Path:
+    """Write a sweep as ``voltage_V,current_A`` CSV, atomically.
+
+    A :class:`Sweep` holding both sweep directions is written in its recorded
+    order, so reading the file back recovers the directions.
+
+    ``sweep_or_arrays`` is a :class:`Sweep` or a pair ``(voltage, current)``
+    of 1-D arrays in V and A.  Each line of ``header_comment`` becomes a
+    ``# `` comment line above the header.  Values are written with enough
+    digits to read back exactly.
+    """
+    if isinstance(sweep_or_arrays, Sweep):
+        v, i = sweep_or_arrays.in_record_order()
+    else:
+        try:
+            v, i = sweep_or_arrays
+        except (TypeError, ValueError):
+            raise TypeError("sweep_or_arrays must be a Sweep or a (voltage, current) pair") from None
+    v = np.asarray(v, dtype=float)
+    i = np.asarray(i, dtype=float)
+    if v.ndim != 1 or v.shape != i.shape:
+        raise ValueError("voltage and current must be 1-D arrays of the same length")
+    parts = []
+    if header_comment:
+        for line in str(header_comment).splitlines():
+            parts.append(("# " + line).rstrip() + "\n")
+    parts.append("voltage_V,current_A\n")
+    if v.size:
+        parts.append(("%r,%r\n" * v.size) % tuple(np.column_stack([v, i]).ravel().tolist()))
+    return atomic_write_text(path, "".join(parts))
