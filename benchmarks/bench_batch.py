@@ -81,7 +81,7 @@ def _engines(out: Path):
 
 def stub_runner(task):
     """STUB standing in for the fit (memory benchmark only): a fixed small record, no fitting."""
-    from bayesprobe.batch import _record
+    from bayesprobe.batch.records import make_record as _record
     s = task["sweep"]
     summary = {"model": "stub", "credible_level": 0.9, "parameters": {},
                "diagnostics": {"converged": True}, "sweep": {"n_points": s.n_points}}

@@ -314,7 +314,7 @@ def test_dask_missing_gives_actionable_message(tmp_path, monkeypatch):
 
 def _config_echo(task):
     """Stand-in worker for the settings-table plumbing test: reports the configuration it was given."""
-    from bayesprobe.batch import _record
+    from bayesprobe.batch.records import make_record as _record
     probe = task["config"].probe
     return _record(task["meta"], task["seed"], "failed",
                    f"echo radius={probe.radius!r} geometry={probe.geometry} ion_mass={task['config'].ion_mass_kg!r}"), None
@@ -343,7 +343,7 @@ def test_sweep_table_sets_per_sweep_probe(tmp_path):
 
 def _dies_on_s3(task):
     """Stand-in worker: the process dies (as in a crash or an out-of-memory kill) on sweep s3 only."""
-    from bayesprobe.batch import _record
+    from bayesprobe.batch.records import make_record as _record
     if task["meta"]["sweep_id"] == "s3":
         os._exit(1)
     time.sleep(0.05)
@@ -458,7 +458,8 @@ def test_warm_start_that_does_not_fit_the_model_is_ignored():
 def test_warm_start_runs_never_cross_a_file():
     """Runs are cut at the run length and at every change of input file (a scan in one file and a
     time series in the next are not one sequence)."""
-    from bayesprobe.batch import SweepItem, _warm_groups
+    from bayesprobe.batch import SweepItem
+    from bayesprobe.batch.tasks import warm_groups as _warm_groups
     items = [SweepItem(f"{f}-{k}", f"{f}-{k}", f"{f} [sweep {k}]", k, path=f) for f, n in (("a", 5), ("b", 2))
              for k in range(n)]
     runs = [[i.sweep_id for i in g] for g in _warm_groups(iter(items), 2)]
