@@ -45,7 +45,7 @@ def plot_trace(result) -> Figure:
         else:
             a_tr.set_xlabel("kept draw index within chain (steps × walkers, thinned)")
             a_h.set_xlabel("density")
-    C, D = x.shape
+    C, D = x.shape              # chains and kept draws (the same for every parameter)
     colors = PALETTE["chains"]
     handles = [Line2D([], [], color=colors[c % len(colors)], lw=1.2, label=f"chain {c}") for c in range(C)]
     fig.legend(handles=handles, loc="outside upper right", ncols=min(C, 6), fontsize=8, frameon=False)
