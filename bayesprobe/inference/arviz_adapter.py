@@ -11,7 +11,8 @@ import warnings
 
 import numpy as np
 
-__all__ = ["az", "rhat_rank", "ess_bulk", "ess_tail", "build_inference_data", "loo", "compare",
+# ``az`` is served by the module __getattr__ below
+__all__ = ["az", "rhat_rank", "ess_bulk", "ess_tail", "build_inference_data", "loo", "compare",  # noqa: F822
            "load_inference_data", "psis_smooth"]
 
 
