@@ -17,6 +17,7 @@ from matplotlib.figure import Figure  # noqa: E402
 
 import bayesprobe as bp  # noqa: E402
 from bayesprobe import plots  # noqa: E402
+from bayesprobe.plots import curves, draws, saving, style  # noqa: E402
 from bayesprobe.physics.electrons import electron_current  # noqa: E402
 from bayesprobe.physics.ions import ion_current  # noqa: E402
 
@@ -77,7 +78,7 @@ def _vline_positions(ax):
 @pytest.mark.parametrize("current,unit", [(1.6e-3, "mA"), (0.4, "mA"), (2.0, "A"), (5e-5, "µA"),
                                           (1e-6, "µA"), (3e-9, "nA")])
 def test_current_unit_follows_magnitude(current, unit):
-    factor, u = plots._current_unit(np.array([-current / 10, current]))
+    factor, u = style.current_unit(np.array([-current / 10, current]))
     assert u == unit
     assert 1.0 <= factor * current < 1000.0
 
@@ -104,10 +105,10 @@ def test_electron_current_split_matches_physics(result):
 
 
 def test_predictive_band_covers_the_credible_level_of_points(result):
-    idx = plots._thin_index(result.draws["n_e"].size, 200)
+    idx = draws.thin_index(result.draws["n_e"].size, 200)
     _, I_mod, _ = plots.electron_current_draws(result, idx)
-    sd = plots._noise_sd(result, idx, I_mod)
-    lo, med, hi = plots._predictive(result, result.credible_level, I_mod, sd)
+    sd = curves.noise_sd(result, idx, I_mod)
+    lo, med, hi = curves.predictive(result, result.credible_level, I_mod, sd)
     inside = np.mean((result.current >= lo) & (result.current <= hi))
     # 200 points: binomial sd of the coverage is about 0.02
     assert abs(inside - result.credible_level) < 0.07
@@ -137,7 +138,7 @@ def test_plot_fit_summary_panel_reports_posterior_and_classical(fit_fig, result)
         assert tex in text
     # the temperature median appears with the digits its interval warrants
     e = summary["T_e"]
-    dec = plots._decimals(e["ci_low"], e["median"], e["ci_high"])
+    dec = style.decimals(e["ci_low"], e["median"], e["ci_high"])
     assert f"{e['median']:.{dec}f}" in text
     assert f"classical {result.classical['T_e']:.{dec}f}" in text
     assert "90 %" in text
@@ -283,13 +284,13 @@ def test_plot_trace_rows_labels_and_diagnostics(result):
 
 def test_save_figures_writes_readable_pngs_of_the_right_size(result, tmp_path, monkeypatch):
     sizes = {}
-    real = plots._save_atomic
+    real = saving._save_atomic
 
     def record(fig, path, fmt, dpi):
         sizes[path.name] = fig.get_size_inches() * dpi
         return real(fig, path, fmt, dpi)
 
-    monkeypatch.setattr(plots, "_save_atomic", record)
+    monkeypatch.setattr(saving, "_save_atomic", record)
     out = tmp_path / "figs"
     paths = plots.save_figures(result, out, dpi=50)
     assert [p.name for p in paths] == ["fit.png", "corner.png", "trace.png", "eedf.png"]

@@ -1,55 +1,75 @@
 """Every call into arviz lives here, so a move to another arviz major version is one file.
 
 Written against the arviz 0.2x API (InferenceData, ``az.rhat``/``az.ess``/``az.loo``).
+arviz (with the matplotlib, xarray and pandas it pulls in) is imported on the first call,
+not when this module is imported; ``az`` (the arviz module) is available as an attribute.
 """
 from __future__ import annotations
 
+import functools
 import warnings
 
 import numpy as np
 
-with warnings.catch_warnings():
-    warnings.filterwarnings("ignore", message=r"\s*ArviZ is undergoing", category=FutureWarning)
-    import arviz as az  # noqa: E402
-
-__all__ = ["az", "rhat_rank", "ess_bulk", "ess_tail", "build_inference_data", "loo", "compare",
+# ``az`` is served by the module __getattr__ below
+__all__ = ["az", "rhat_rank", "ess_bulk", "ess_tail", "build_inference_data", "loo", "compare",  # noqa: F822
            "load_inference_data", "psis_smooth"]
+
+
+@functools.cache
+def _arviz():
+    """The arviz module, imported once on first use."""
+    with warnings.catch_warnings():
+        warnings.filterwarnings("ignore", message=r"\s*ArviZ is undergoing", category=FutureWarning)
+        import arviz
+    return arviz
+
+
+def __getattr__(name):
+    if name == "az":
+        return _arviz()
+    raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
+
+
+def __dir__():
+    return sorted(set(globals()) | {"az"})
 
 
 def _dataset(array_chain_draw: np.ndarray):
     # arviz expects (chain, draw); short runs with many walkers legitimately have more chains than draws
     with warnings.catch_warnings():
         warnings.filterwarnings("ignore", message="More chains", category=UserWarning)
-        return az.convert_to_dataset({"x": array_chain_draw})
+        return _arviz().convert_to_dataset({"x": array_chain_draw})
 
 
 def rhat_rank(chains: np.ndarray) -> float:
     """Rank-normalised split R-hat of a (chain, draw) array."""
-    return float(az.rhat(_dataset(chains), method="rank")["x"].values)
+    return float(_arviz().rhat(_dataset(chains), method="rank")["x"].values)
 
 
 def ess_bulk(chains: np.ndarray) -> float:
-    return float(az.ess(_dataset(chains), method="bulk")["x"].values)
+    return float(_arviz().ess(_dataset(chains), method="bulk")["x"].values)
 
 
 def ess_tail(chains: np.ndarray) -> float:
-    return float(az.ess(_dataset(chains), method="tail")["x"].values)
+    return float(_arviz().ess(_dataset(chains), method="tail")["x"].values)
 
 
 def build_inference_data(posterior: dict, *, log_likelihood: dict, observed_data: dict,
                          posterior_predictive: dict, sample_stats: dict, constant_data: dict,
                          coords: dict, dims: dict, attrs: dict):
     """InferenceData with posterior, sample_stats, log_likelihood, observed_data, posterior_predictive."""
-    return az.from_dict(posterior=posterior, log_likelihood=log_likelihood, observed_data=observed_data,
-                        posterior_predictive=posterior_predictive, sample_stats=sample_stats,
-                        constant_data=constant_data, coords=coords, dims=dims, attrs=attrs)
+    return _arviz().from_dict(posterior=posterior, log_likelihood=log_likelihood,
+                              observed_data=observed_data, posterior_predictive=posterior_predictive,
+                              sample_stats=sample_stats, constant_data=constant_data, coords=coords,
+                              dims=dims, attrs=attrs)
 
 
 def loo(idata, *, reff: float | None = None):
     """PSIS-LOO of the ``current`` log-likelihood (``reff`` from the posterior's ESS if None)."""
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", UserWarning)
-        return az.loo(idata, pointwise=True, reff=reff, var_name="current")
+        return _arviz().loo(idata, pointwise=True, reff=reff, var_name="current")
 
 
 def compare(models: dict):
@@ -57,11 +77,11 @@ def compare(models: dict):
     # reported by bayesprobe itself from the loo results
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
-        return az.compare(models, ic="loo", var_name="current")
+        return _arviz().compare(models, ic="loo", var_name="current")
 
 
 def load_inference_data(path):
-    return az.from_netcdf(path)
+    return _arviz().from_netcdf(path)
 
 
 def psis_smooth(log_weights: np.ndarray) -> tuple[np.ndarray, float]:
@@ -74,5 +94,5 @@ def psis_smooth(log_weights: np.ndarray) -> tuple[np.ndarray, float]:
     """
     lw = np.asarray(log_weights, dtype=float).copy()
     with np.errstate(over="ignore"):   # extreme tails overflow inside the Pareto fit; k-hat then rejects them
-        smoothed, khat = az.psislw(lw, reff=1.0, normalize=True)
+        smoothed, khat = _arviz().psislw(lw, reff=1.0, normalize=True)
     return np.asarray(smoothed, dtype=float), float(khat)
