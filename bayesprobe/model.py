@@ -95,7 +95,9 @@ class ModelConfig:
     ion : str or float
         Ion name from the table or mass in u (ignored if ``ion_mass_kg`` is given).
     ion_collection : {"thin-sheath", "oml", "abr", "auto"}
-    electrons : {"maxwellian", "bi-maxwellian"}
+        Name of the ion-collection theory; the object is :attr:`ion_theory`.
+    electrons : {"maxwellian", "bi-maxwellian"} or another registered model name
+        Name of the electron model; the object is :attr:`electron_model`.
     T_i : float
         Ion temperature in eV (OML ions; fall-off of the ion current above V_p).
     bohm_factor : float or str

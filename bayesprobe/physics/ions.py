@@ -5,6 +5,14 @@ voltages of shape ``(n,)`` give ``(k, n)``). They return the ion current as a
 positive magnitude; the total probe current is I = I_e - I_i. SI units,
 temperatures in eV.
 
+Each theory is also a strategy object in :data:`ION_THEORIES` (name -> :class:`IonTheory`;
+``ModelConfig.ion_theory``): ``current(..., slope=False)`` gives the current and, on request,
+its slope dI/dV from one body; ``kinks`` says whether the current has slope kinks away from
+V_p (the interpolated series-resistance solve then uses Newton); ``check(probe)`` refuses a
+probe the theory does not apply to; ``resolve(probe)`` is the theory that applies (``auto``
+on a planar probe is ``thin-sheath``). Adding a theory: one subclass registered in
+:data:`ION_THEORIES`, and tests.
+
 Theories and where they hold (xi = r_p / lambda_D):
 
 ``thin-sheath``
