@@ -219,7 +219,9 @@ def test_value_and_slope_come_from_one_body(geometry, theory, electrons, rf):
 
 
 def test_ion_theories_are_objects():
-    """Names, planar validity (today's messages), kinks and the ``auto`` resolution."""
+    """Names, planar validity (today's messages), kinks, the ``auto`` resolution and the
+    properties other modules ask instead of comparing names (module docstring of
+    bayesprobe.physics.ions: ``auto`` is the smaller of OML and ABR on cylinders and spheres)."""
     assert list(ION_THEORIES) == ["thin-sheath", "oml", "abr", "auto"]
     assert "oml" in ION_THEORIES and ", ".join(ION_THEORIES) == "thin-sheath, oml, abr, auto"
     assert all(isinstance(t, IonTheory) for t in ION_THEORIES.values())
@@ -234,6 +236,8 @@ def test_ion_theories_are_objects():
     kinks = {n: bp.ModelConfig(probe=WIRE, ion_collection=n).ion_theory.kinks for n in ION_THEORIES}
     assert kinks == {"thin-sheath": False, "oml": False, "abr": True, "auto": True}
     assert not bp.ModelConfig(probe=PLANAR, ion_collection="auto").ion_theory.kinks
+    assert [n for n, t in ION_THEORIES.items() if t.orbital] == ["oml", "auto"]
+    assert [n for n, t in ION_THEORIES.items() if t.bohm_flux] == ["thin-sheath"]
 
 
 def test_electron_model_objects_answer_for_the_model():

@@ -237,6 +237,11 @@ class IonTheory:
     #: True when the current has slope kinks away from V_p (the interpolated series-resistance
     #: solve then falls back to Newton)
     kinks: bool = False
+    #: True when the theory includes orbital-motion-limited collection (OML; ``auto`` on
+    #: cylinders and spheres), whose cylinder current squared is linear in the bias
+    orbital: bool = False
+    #: True for the Bohm flux through the sheath edge (thin-sheath theory)
+    bohm_flux: bool = False
 
     def current(self, V, V_p, n_i, T_e, probe, ion_mass, n_e, T_i, bohm_factor, sheath_expansion, *,
                 slope=False):
@@ -258,6 +263,7 @@ class IonTheory:
 
 class ThinSheath(IonTheory):
     name = "thin-sheath"
+    bohm_flux = True
 
     def current(self, V, V_p, n_i, T_e, probe, ion_mass, n_e, T_i, bohm_factor, sheath_expansion, *,
                 slope=False):
@@ -267,6 +273,7 @@ class ThinSheath(IonTheory):
 class OML(IonTheory):
     name = "oml"
     planar = False
+    orbital = True
 
     def current(self, V, V_p, n_i, T_e, probe, ion_mass, n_e, T_i, bohm_factor, sheath_expansion, *,
                 slope=False):
@@ -303,6 +310,7 @@ class Auto(_Tabulated):
 
     name = "auto"
     planar = True
+    orbital = True
 
     @staticmethod
     def _value(V, V_p, n_i, T_e, probe, ion_mass, n_e, T_i):
