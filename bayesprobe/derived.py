@@ -18,13 +18,10 @@ def derived_quantities(phys: dict, config: ModelConfig) -> dict:
     out = {}
     n_e = np.asarray(phys["n_e"], float)
     n_i = np.asarray(phys.get("n_i", n_e), float)
-    if config.electrons == "maxwellian":
-        T_s = np.asarray(phys["T_e"], float)
-        T_eff = T_s
-    else:
-        a = np.asarray(phys["hot_fraction"], float)
-        T_s = 1.0 / ((1 - a) / phys["T_e_cold"] + a / phys["T_e_hot"])
-        T_eff = effective_temperature(phys, config)
+    model = config.electron_model
+    T_s = model.screening_temperature(phys)
+    T_eff = effective_temperature(phys, config)
+    if model.two_temperature:
         out["T_e_eff"] = T_eff
         out["T_e_screen"] = T_s
     V_f = floating_potential(phys, config)

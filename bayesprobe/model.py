@@ -64,20 +64,22 @@ from typing import Mapping
 
 import numpy as np
 
-from .quantities import DISTORTIONS
 from .physics.constants import ion_mass as _ion_mass
-from .physics.distortions import (_rf_electron_current, _rf_electron_current_with_slope, _solve_series,
-                                  hermite_series_current, series_nodes)
-from .physics.electron_models import ELECTRON_MODELS as _ELECTRON_MODELS, electron_model
-from .physics.electrons import _electron_current, _electron_current_with_slope
+from .physics.distortions import RFAveraged
+from .physics.electron_models import ELECTRON_MODELS as _ELECTRON_MODELS
+from .physics.electron_models import ElectronModel, electron_model
 from .physics.geometry import Probe
-from .physics.ions import (ION_THEORIES, _ion_current, _oml_with_slope, _thin_sheath_with_slope,
-                           bohm_factor as _bohm_factor)
+from .physics.ions import ION_THEORIES, IonTheory
+from .physics.ions import bohm_factor as _bohm_factor
+from .physics.series import series_current
+from .quantities import DISTORTIONS
 
 __all__ = ["ModelConfig", "ELECTRON_MODELS", "probe_current", "floating_potential",
            "plasma_parameter_names", "effective_temperature", "distortion_parameter_names",
            "measured_floating_potential", "DISTORTION_SWITCHES"]
 
+#: names of the electron models registered at import (the registry itself:
+#: :data:`bayesprobe.physics.electron_models.ELECTRON_MODELS`)
 ELECTRON_MODELS = tuple(_ELECTRON_MODELS)
 #: ModelConfig switch -> the nuisance parameters it adds
 DISTORTION_SWITCHES = {d.switch: d.parameters for d in DISTORTIONS.values() if d.switch is not None}
@@ -93,7 +95,9 @@ class ModelConfig:
     ion : str or float
         Ion name from the table or mass in u (ignored if ``ion_mass_kg`` is given).
     ion_collection : {"thin-sheath", "oml", "abr", "auto"}
-    electrons : {"maxwellian", "bi-maxwellian"}
+        Name of the ion-collection theory; the object is :attr:`ion_theory`.
+    electrons : {"maxwellian", "bi-maxwellian"} or another registered model name
+        Name of the electron model; the object is :attr:`electron_model`.
     T_i : float
         Ion temperature in eV (OML ions; fall-off of the ion current above V_p).
     bohm_factor : float or str
@@ -132,9 +136,21 @@ class ModelConfig:
     hysteresis: bool = False
 
     @property
-    def electron_model(self):
+    def electron_model(self) -> ElectronModel:
         """The electron model object (:mod:`bayesprobe.physics.electron_models`)."""
         return electron_model(self.electrons)
+
+    @property
+    def electron_current_model(self) -> ElectronModel:
+        """The electron model as the probe sees it: phase-averaged when ``rf_fluctuation`` is on."""
+        model = self.electron_model
+        return RFAveraged(model) if self.rf_fluctuation else model
+
+    @property
+    def ion_theory(self) -> IonTheory:
+        """The ion-collection theory object that applies to this probe (``auto`` resolved for planar
+        probes; :data:`bayesprobe.physics.ions.ION_THEORIES`)."""
+        return ION_THEORIES[self.ion_collection].resolve(self.probe)
 
     @property
     def distorted(self) -> bool:
@@ -148,13 +164,11 @@ class ModelConfig:
     def __post_init__(self):
         if not isinstance(self.probe, Probe):
             raise ValueError("probe must be a bayesprobe.Probe")
-        if self.ion_collection not in ION_THEORIES:
+        if not isinstance(self.ion_collection, str) or self.ion_collection not in ION_THEORIES:
             raise ValueError(f"ion_collection must be one of {', '.join(ION_THEORIES)}, got {self.ion_collection!r}")
-        if self.ion_collection in ("oml", "abr") and self.probe.geometry == "planar":
-            raise ValueError(f"ion_collection {self.ion_collection!r} needs a cylindrical or spherical probe; "
-                             "use thin-sheath or auto for planar probes")
-        if self.electrons not in ELECTRON_MODELS:
-            raise ValueError(f"electrons must be one of {', '.join(ELECTRON_MODELS)}, got {self.electrons!r}")
+        ION_THEORIES[self.ion_collection].check(self.probe)
+        if not isinstance(self.electrons, str) or self.electrons not in _ELECTRON_MODELS:
+            raise ValueError(f"electrons must be one of {', '.join(_ELECTRON_MODELS)}, got {self.electrons!r}")
         if not (np.isfinite(self.T_i) and self.T_i > 0):
             raise ValueError(f"T_i must be a positive temperature in eV, got {self.T_i!r}")
         object.__setattr__(self, "bohm_factor", _bohm_factor(self.bohm_factor))
@@ -290,7 +304,7 @@ def probe_current(V, params: Mapping, config: ModelConfig, *, validate: bool = T
         _validate(params, config)
     V = np.asarray(V, dtype=float)
     if not config.distorted:
-        return _plasma_current(V, params, config)
+        return _characteristic(V, _columns(params, config), config)
     V_applied = V
     if config.hysteresis:
         if branches is None:
@@ -302,7 +316,7 @@ def probe_current(V, params: Mapping, config: ModelConfig, *, validate: bool = T
     if config.series_resistance:
         I = _series_current(V, _column(params, "R_series"), cols, config, series_solver)
     else:
-        I = _plasma_from_columns(V, cols, config)
+        I = _characteristic(V, cols, config)
     if config.leakage:
         I = I + _column(params, "G_leak") * V_applied + _column(params, "I_offset")
     if config.hysteresis:
@@ -310,56 +324,16 @@ def probe_current(V, params: Mapping, config: ModelConfig, *, validate: bool = T
     return I
 
 
-#: below this many points per parameter set the interpolated series solve is not worth its nodes
-_INTERPOLATE_MIN_POINTS = 50
-
-
 def _series_current(V, R, cols: dict, config: ModelConfig, solver: str = "newton"):
-    """The current through the sheath in series with R: I = f(V - I R) for every set and point.
-
-    ``"newton"``: :func:`bayesprobe.physics.distortions._solve_series` on every element.
-    ``"interpolate"``: the sheath-voltage range of each row is bounded from the characteristic at
-    the two ends of the sweep, the characteristic and its slope are evaluated once at the nodes of
-    :func:`~bayesprobe.physics.distortions.series_nodes` between them, and every point is
-    interpolated on the parametric curve (:func:`~bayesprobe.physics.distortions.hermite_series_current`).
-    Used for parameter arrays, at least 50 points and ion currents smooth away from V_p
-    (thin-sheath, OML; the ABR table has kinks at unknown voltages, where Newton is used).
-    """
-    if solver not in ("newton", "interpolate"):
-        raise ValueError(f"series_solver must be 'newton' or 'interpolate', got {solver!r}")
-    shape = np.broadcast_shapes(V.shape, np.shape(R), *(np.shape(c) for c in cols.values()))
-
-    def plasma_at(v, flat=None):
-        # (current, slope); flat: indices into the broadcast grid, so the solver can iterate on a subset
-        if flat is None:
-            return _plasma_and_slope(v, cols, config)
-        return _plasma_and_slope(v, _subset(cols, shape, flat), config)
-
-    if solver == "newton" or len(shape) != 2 or shape[-1] < _INTERPOLATE_MIN_POINTS or _ion_kinks(config):
-        return _solve_series(plasma_at, V, R)
-    V2 = np.broadcast_to(V, shape)
-    ends = np.stack([V2.min(axis=-1), V2.max(axis=-1)], axis=-1)             # (k, 2)
-    # the sheath voltage at an end lies between V and V - f(V) R (the root of I = f(V - I R) lies
-    # between 0 and f(V)), so these bounds enclose the sheath voltages of the whole sweep
-    f_ends = _plasma_from_columns(ends, cols, config)
-    v_lo = ends[:, :1] - np.maximum(f_ends[:, :1], 0.0) * R
-    v_hi = ends[:, 1:] - np.minimum(f_ends[:, 1:], 0.0) * R
-    V_p = cols["V_p"]
-    if config.electrons == "maxwellian":
-        T_min = T_max = cols["T_e"]
-    else:
-        T_min, T_max = cols["T_e_cold"], cols["T_e_hot"]
-    A = cols["V_rf"] if config.rf_fluctuation else 0.0
-    nodes = series_nodes(v_lo, v_hi, V_p, T_min, A, T_max, config.T_i)
-    f_nodes, slope_nodes = _plasma_and_slope(nodes, cols, config)
-    return hermite_series_current(V, np.broadcast_to(R, (shape[0], 1)), nodes,
-                                  np.broadcast_to(f_nodes, nodes.shape), np.broadcast_to(slope_nodes, nodes.shape))
-
-
-def _ion_kinks(config: ModelConfig) -> bool:
-    """True when the ion current has slope discontinuities away from V_p (ABR table rows and the
-    table edge; the crossing of OML and ABR under ``auto``)."""
-    return config.ion_collection == "abr" or (config.ion_collection == "auto" and config.probe.geometry != "planar")
+    """The current through the sheath in series with R (:func:`bayesprobe.physics.series.series_current`):
+    interpolated only when neither the electron model nor the ion theory has slope kinks away from
+    V_p (and V_p +- V_rf), Newton otherwise."""
+    model = config.electron_model
+    smooth = not (model.kinks or config.ion_theory.kinks)
+    return series_current(V, R, lambda v, c, slope=False: _characteristic(v, c, config, slope=slope), cols,
+                          solver=solver, smooth=smooth, T_min=model.coldest_temperature(cols),
+                          T_max=model.hottest_temperature(cols),
+                          A=cols["V_rf"] if config.rf_fluctuation else 0.0, T_i=config.T_i)
 
 
 def _columns(params: Mapping, config: ModelConfig) -> dict:
@@ -371,82 +345,44 @@ def _columns(params: Mapping, config: ModelConfig) -> dict:
     return cols
 
 
-def _plasma_and_slope(V, cols: dict, config: ModelConfig, ion_step: float = 1e-5):
-    """Plasma characteristic and its slope dI/dV (A/V): analytic for the electrons and for
-    thin-sheath and OML ions, a forward difference of ``ion_step`` volts for the ABR table."""
-    n_e, n_i, V_p = cols["n_e"], cols["n_i"], cols["V_p"]
-    V_rf = cols.get("V_rf") if config.rf_fluctuation else None
-    probe, sx = config.probe, config.electron_sheath_expansion
-    if config.electrons == "maxwellian":
-        T_e = cols["T_e"]
-        a = T_h = None
-        T_s = T_e
-    else:
-        T_e, T_h, a = cols["T_e_cold"], cols["T_e_hot"], cols["hot_fraction"]
-        T_s = 1.0 / ((1.0 - a) / T_e + a / T_h)
-    if V_rf is None:
-        I_e, dI_e = _electron_current_with_slope(V, V_p, n_e, T_e, probe, a, T_h, sx)
-    else:
-        I_e, dI_e = _rf_electron_current_with_slope(V, V_p, n_e, T_e, V_rf, probe, a, T_h, sx)
-    theory = config.ion_collection
-    if theory == "thin-sheath" or (theory == "auto" and probe.geometry == "planar"):
-        I_i, dI_i = _thin_sheath_with_slope(V, V_p, n_i, T_s, probe, config.ion_mass_kg, n_e, config.T_i,
-                                            config.bohm_factor, config.sheath_expansion)
-    elif theory == "oml":
-        I_i, dI_i = _oml_with_slope(V, V_p, n_i, probe, config.ion_mass_kg, config.T_i)
-    else:
-        args = (n_i, T_s, probe, config.ion_mass_kg, theory, n_e, config.T_i, config.bohm_factor,
-                config.sheath_expansion)
-        I_i = _ion_current(V, V_p, *args)
-        dI_i = (_ion_current(V + ion_step, V_p, *args) - I_i) / ion_step
-    return I_e - I_i, dI_e - dI_i
-
-
-def _subset(cols: dict, shape, flat) -> dict:
-    """Parameter columns gathered at flat indices of the broadcast grid (1-D, one per element)."""
-    idx = np.unravel_index(flat, shape)
-    out = {}
-    for n, c in cols.items():
-        c = np.asarray(c)
-        if c.size == 1:
-            out[n] = c.reshape(())
-            continue
-        c = c.reshape((1,) * (len(shape) - c.ndim) + c.shape)
-        out[n] = c[tuple(i if d > 1 else 0 for i, d in zip(idx, c.shape))]
-    return out
-
-
-def _plasma_current(V, params: Mapping, config: ModelConfig):
-    return _plasma_from_columns(V, _columns(params, config), config)
-
-
-def _plasma_from_columns(V, cols: dict, config: ModelConfig):
-    """Plasma characteristic from parameter arrays already shaped to broadcast with V."""
-    n_e, n_i, V_p = cols["n_e"], cols["n_i"], cols["V_p"]
-    V_rf = cols.get("V_rf") if config.rf_fluctuation else None
-    probe = config.probe
-    if config.electrons == "maxwellian":
-        T_e = cols["T_e"]
-        if V_rf is None:
-            I_e = _electron_current(V, V_p, n_e, T_e, probe, sheath_expansion=config.electron_sheath_expansion)
-        else:
-            I_e = _rf_electron_current(V, V_p, n_e, T_e, V_rf, probe, sheath_expansion=config.electron_sheath_expansion)
-        T_s = T_e
-    else:
-        T_c, T_h, a = cols["T_e_cold"], cols["T_e_hot"], cols["hot_fraction"]
-        if V_rf is None:
-            I_e = _electron_current(V, V_p, n_e, T_c, probe, a, T_h, config.electron_sheath_expansion)
-        else:
-            I_e = _rf_electron_current(V, V_p, n_e, T_c, V_rf, probe, a, T_h, config.electron_sheath_expansion)
-        T_s = 1.0 / ((1.0 - a) / T_c + a / T_h)        # screening temperature for the Bohm speed
-    I_i = _ion_current(V, V_p, n_i, T_s, probe, config.ion_mass_kg, config.ion_collection, n_e, config.T_i,
-                       config.bohm_factor, config.sheath_expansion)
+def _characteristic(V, cols: dict, config: ModelConfig, *, slope: bool = False):
+    """Plasma characteristic I_e - I_i from parameter columns already shaped to broadcast with V;
+    with ``slope`` the pair (I, dI/dV in A/V): analytic for the electrons and for thin-sheath and
+    OML ions, a forward difference for the tabulated (ABR) ions."""
+    T_s = config.electron_model.screening_temperature(cols)       # for the Bohm speed and Debye length
+    I_e = config.electron_current_model.current(V, cols, config.probe, slope=slope,
+                                                sheath_expansion=config.electron_sheath_expansion)
+    I_i = config.ion_theory.current(V, cols["V_p"], cols["n_i"], T_s, config.probe, config.ion_mass_kg,
+                                    cols["n_e"], config.T_i, config.bohm_factor, config.sheath_expansion,
+                                    slope=slope)
+    if slope:
+        return I_e[0] - I_i[0], I_e[1] - I_i[1]
     return I_e - I_i
 
 
 def effective_temperature(params: Mapping, config: ModelConfig):
     """Two thirds of the mean electron energy, in eV (equals T_e for a Maxwellian)."""
     return config.electron_model.effective_temperature(params)
+
+
+def _bisect(current_at, lo, hi, iterations: int):
+    """Vectorised bisection for the zero of an increasing current: one root per parameter set,
+    NaN where the current does not go from negative at ``lo`` to positive at ``hi``."""
+    with np.errstate(over="ignore", invalid="ignore"):
+        ok = (current_at(lo) < 0) & (current_at(hi) > 0)
+        for _ in range(iterations):
+            mid = 0.5 * (lo + hi)
+            neg = current_at(mid) < 0
+            lo = np.where(neg, mid, lo)
+            hi = np.where(neg, hi, mid)
+    return np.where(ok, 0.5 * (lo + hi), np.nan)
+
+
+def _bracket_scale(params: Mapping, config: ModelConfig):
+    """(V_p, hottest temperature) of every parameter set as 1-D arrays."""
+    V_p = np.atleast_1d(np.asarray(params["V_p"], float))
+    T_max = config.electron_model.hottest_temperature(params)
+    return V_p, np.broadcast_to(np.atleast_1d(T_max), V_p.shape)
 
 
 def floating_potential(params: Mapping, config: ModelConfig, *, iterations: int = 60):
@@ -460,28 +396,14 @@ def floating_potential(params: Mapping, config: ModelConfig, *, iterations: int 
     """
     config = config.undistorted()
     _validate(params, config)
-    V_p = np.atleast_1d(np.asarray(params["V_p"], float))
-    T_max = config.electron_model.hottest_temperature(params)
-    T_max = np.broadcast_to(np.atleast_1d(T_max), V_p.shape)
-    lo = V_p - 80.0 * T_max
-    hi = V_p.copy()
+    V_p, T_max = _bracket_scale(params, config)
     single = {k: np.atleast_1d(np.asarray(v, float)) for k, v in params.items()}
 
     def current_at(v):
         # evaluate one voltage per parameter set: diagonal of the (k, k) problem, done as (k, 1)
-        return probe_current(np.zeros(1), {k: x for k, x in single.items()} | {"V_p": V_p - v}, config,
-                             validate=False)[..., 0]
+        return probe_current(np.zeros(1), single | {"V_p": V_p - v}, config, validate=False)[..., 0]
 
-    f_lo = current_at(lo)
-    f_hi = current_at(hi)
-    ok = (f_lo < 0) & (f_hi > 0)
-    for _ in range(iterations):
-        mid = 0.5 * (lo + hi)
-        f_mid = current_at(mid)
-        neg = f_mid < 0
-        lo = np.where(neg, mid, lo)
-        hi = np.where(neg, hi, mid)
-    out = np.where(ok, 0.5 * (lo + hi), np.nan)
+    out = _bisect(current_at, V_p - 80.0 * T_max, V_p.copy(), iterations)
     return out if np.ndim(params["V_p"]) else out[0]
 
 
@@ -497,24 +419,12 @@ def measured_floating_potential(params: Mapping, config: ModelConfig, *, iterati
     if not config.distorted:
         return floating_potential(params, config, iterations=iterations)
     _validate(params, config)
-    V_p = np.atleast_1d(np.asarray(params["V_p"], float))
-    T_max = config.electron_model.hottest_temperature(params)
-    T_max = np.broadcast_to(np.atleast_1d(T_max), V_p.shape)
+    V_p, T_max = _bracket_scale(params, config)
     single = {k: np.atleast_1d(np.asarray(v, float)) for k, v in params.items()}
-
     mean_branch = (np.zeros(1), np.zeros(1)) if config.hysteresis else None
 
     def current_at(v):
         return probe_current(v[:, None], single, config, validate=False, branches=mean_branch)[:, 0]
 
-    lo = V_p - 80.0 * T_max
-    hi = V_p + 10.0 * T_max
-    with np.errstate(over="ignore", invalid="ignore"):
-        ok = (current_at(lo) < 0) & (current_at(hi) > 0)
-        for _ in range(iterations):
-            mid = 0.5 * (lo + hi)
-            neg = current_at(mid) < 0
-            lo = np.where(neg, mid, lo)
-            hi = np.where(neg, hi, mid)
-    out = np.where(ok, 0.5 * (lo + hi), np.nan)
+    out = _bisect(current_at, V_p - 80.0 * T_max, V_p + 10.0 * T_max, iterations)
     return out if np.ndim(params["V_p"]) else out[0]

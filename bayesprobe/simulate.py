@@ -80,10 +80,11 @@ def simulate(truth: dict | None = None, *, config: ModelConfig | None = None,
         swept both ways); needed by the ``hysteresis`` switch. The sweep carries the directions.
     """
     config = config or ModelConfig()
+    model = config.electron_model
     params = dict(DEFAULT_TRUTH)
-    if config.electrons == "bi-maxwellian":
+    if "T_e" not in model.parameter_names:
         params.pop("T_e")
-        params.update({"T_e_cold": 2.0, "T_e_hot": 10.0, "hot_fraction": 0.05})
+    params.update({k: v for k, v in model.default_truth.items() if k not in params})
     for name in distortion_parameter_names(config):
         params[name] = 0.0
     params.update(truth or {})
@@ -92,7 +93,7 @@ def simulate(truth: dict | None = None, *, config: ModelConfig | None = None,
     if unknown:
         raise ValueError(f"unknown truth parameter(s) {sorted(unknown)} for this model; "
                          f"expected {', '.join(expected)}")
-    if config.electrons == "bi-maxwellian":
+    if "T_e" not in model.parameter_names:
         params.pop("T_e", None)
     if "n_i" not in params or config.quasi_neutral:
         params["n_i"] = params["n_e"]
@@ -105,7 +106,7 @@ def simulate(truth: dict | None = None, *, config: ModelConfig | None = None,
     if not isinstance(n_points, (int, np.integer)) or n_points < 2:
         raise ValueError(f"n_points must be an integer >= 2, got {n_points!r}")
 
-    T_scale = params.get("T_e", params.get("T_e_cold"))
+    T_scale = float(model.coldest_temperature(params))
     user_grid = voltage is not None
     if voltage is None:
         lo = params["V_p"] - 12.0 * T_scale - 20.0 if v_min is None else float(v_min)

@@ -13,9 +13,9 @@ from scipy.special import i0, lambertw
 
 import bayesprobe as bp
 from bayesprobe.model import measured_floating_potential
-from bayesprobe.physics.distortions import (leakage_current, rf_electron_current, rf_phase_average,
-                                            series_resistance_current)
+from bayesprobe.physics.distortions import leakage_current, rf_electron_current, rf_phase_average
 from bayesprobe.physics.electrons import attracted_factor, electron_current, electron_saturation_current
+from bayesprobe.physics.series import series_resistance_current
 
 PLANAR = bp.Probe("planar", radius=2e-3)
 WIRE = bp.Probe("cylindrical", radius=50e-6, length=5e-3)
@@ -199,7 +199,7 @@ def test_plasma_slope_matches_finite_difference():
     """dI/dV of the full plasma characteristic (analytic electron part, differenced ion part)
     against a central difference of the characteristic itself, bi-Maxwellian, RF on, every geometry.
     Tolerance 1e-3 relative, as for the phase-average slope above (measured worst 2e-4)."""
-    from bayesprobe.model import _columns, _plasma_and_slope, _plasma_from_columns
+    from bayesprobe.model import _characteristic, _columns
     p = {"n_e": np.array([1e16, 3e16]), "n_i": np.array([1.2e16, 2e16]), "T_e_cold": np.array([2.0, 3.0]),
          "T_e_hot": np.array([8.0, 12.0]), "hot_fraction": np.array([0.05, 0.1]), "V_p": np.array([8.0, 10.0]),
          "V_rf": np.array([1.5, 4.0])}
@@ -209,8 +209,8 @@ def test_plasma_slope_matches_finite_difference():
                         (bp.Probe("spherical", radius=1e-3), "oml")):
         cfg = bp.ModelConfig(probe=probe, ion_collection=ions, electrons="bi-maxwellian", rf_fluctuation=True)
         cols = _columns(p, cfg)
-        _, slope = _plasma_and_slope(V, cols, cfg)
-        fd = (_plasma_from_columns(V + h, cols, cfg) - _plasma_from_columns(V - h, cols, cfg)) / (2 * h)
+        _, slope = _characteristic(V, cols, cfg, slope=True)
+        fd = (_characteristic(V + h, cols, cfg) - _characteristic(V - h, cols, cfg)) / (2 * h)
         assert np.allclose(slope, fd, rtol=1e-3, atol=1e-6 * np.max(np.abs(fd)))
 
 
@@ -222,13 +222,10 @@ def test_analytic_ion_slope_matches_central_difference(ions, probe, expansion):
     """The analytic ion slopes (Child-law edge growth below V_p, Boltzmann repulsion with T_i
     above) against a central difference of the ion current, away from the kink at V_p (h = 1e-6 V;
     truncation ~h^2 f''' / 6, tolerance 1e-6 relative; common practice, no source)."""
-    from bayesprobe.physics.ions import _ion_current, _oml_with_slope, _thin_sheath_with_slope
+    from bayesprobe.physics.ions import ION_THEORIES, _ion_current
     V = np.concatenate([np.linspace(-40, 9.9, 200), np.linspace(10.01, 10.3, 30)])
     args = (10.0, 1e16, 3.0, probe, 6.63e-26, 1e16, 0.026, 0.6, expansion)
-    if ions == "thin-sheath":
-        I, dI = _thin_sheath_with_slope(V, *args)
-    else:
-        I, dI = _oml_with_slope(V, 10.0, 1e16, probe, 6.63e-26, 0.026)
+    I, dI = ION_THEORIES[ions].current(V, *args, slope=True)
 
     def ion(v):
         return _ion_current(v, 10.0, 1e16, 3.0, probe, 6.63e-26, ions, 1e16, 0.026, 0.6, expansion)

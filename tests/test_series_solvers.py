@@ -14,8 +14,8 @@ from scipy.special import lambertw
 
 import bayesprobe as bp
 from bayesprobe.inference.posterior import LogPosterior, default_parameters
-from bayesprobe.physics.distortions import hermite_series_current, series_nodes, series_resistance_current
 from bayesprobe.physics.electrons import electron_saturation_current
+from bayesprobe.physics.series import hermite_series_current, series_nodes, series_resistance_current
 
 PLANAR = bp.Probe("planar", radius=2e-3)
 WIRE = bp.Probe("cylindrical", radius=50e-6, length=5e-3)

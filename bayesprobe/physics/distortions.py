@@ -1,4 +1,6 @@
-"""Distortions of a measured sweep: RF fluctuation of V_p, series resistance, leakage.
+"""Distortions of a measured sweep: RF fluctuation of V_p and leakage.
+
+The series (circuit) resistance has its own module, :mod:`bayesprobe.physics.series`.
 
 Every function is pure and vectorised like the rest of :mod:`bayesprobe.physics`:
 parameters of shape ``(k, 1)`` broadcast against voltages of shape ``(n,)`` (or
@@ -29,33 +31,6 @@ resistance); I. H. Hutchinson, *Principles of Plasma Diagnostics*, 2nd ed. (CUP
 2002), ch. 3. The Bessel identity (1/pi) int_0^pi exp(a cos t) dt = I0(a) is
 Abramowitz & Stegun 9.6.19.
 
-Series (circuit) resistance
----------------------------
-A resistance R between the bias source and the probe surface (sense resistor,
-cable, RF chokes, the plasma's own return path) means the sheath sees
-V_s = V - I R, so the measured current solves the implicit equation
-``I = f(V - I R)`` with f the plasma characteristic (Godyak & Demidov 2011;
-Hutchinson 2002 ch. 3). f is increasing in V, so g(I) = I - f(V - I R) is strictly
-increasing and has one root, bracketed by 0 and f(V). :func:`series_resistance_current`
-solves it for all walkers and points at once by Newton steps with the analytic slope
-of the characteristic (bisection whenever a step leaves the bracket), iterating only on
-the elements not yet converged, and takes one last Newton step on each converged element. A
-Newton step is used only strictly inside the bracket and when it at least halves the step
-before the last (the safeguard of Numerical Recipes' ``rtsafe``): a flat saturation branch
-next to the steep exponential otherwise makes Newton cycle between the two. For a pure
-exponential f = a exp(V/T) the root is I = (T/R) W(R a exp(V/T) / T) with Lambert's W, which
-the tests use as the outside check.
-
-The likelihood uses a cheaper route with no iteration (:func:`hermite_series_current`): with
-the sheath at v the applied bias is W(v) = v + R f(v) and the current f(v), a parametric form
-of the measured characteristic. f and f' are evaluated once at about 200 sheath-voltage nodes
-per parameter set (:func:`series_nodes`: spaced 0.15 T_e around the knee, geometrically graded
-towards V_p, V_p +- V_rf and the ends of the range), and every point is interpolated on (W, f)
-by a monotone cubic Hermite step (slopes dI/dW = f'/(1 + R f') limited as Fritsch & Carlson
-1980). Against the Newton solution its error is below 1e-4 of max |I| for thin-sheath and OML
-ions (tests/test_series_solvers.py); the ABR table's kinks at unknown voltages keep Newton
-there.
-
 Leakage and offset
 ------------------
 Insulator or cable leakage and an amplifier offset add a current linear in the
@@ -67,13 +42,14 @@ from __future__ import annotations
 import numpy as np
 from scipy.special import i0e
 
-from ._checks import finite as _finite, positive as _positive
-from .electrons import _attracted, _attracted_slope, _saturation
+from ._checks import finite as _finite
+from ._checks import positive as _positive
 from .constants import E_CHARGE, EPS0
+from .electron_models import ElectronModel
+from .electrons import _attracted, _attracted_slope, _saturation, _sum_groups, maxwellian_groups
 from .geometry import Probe
 
-__all__ = ["rf_phase_average", "rf_electron_current", "series_resistance_current", "leakage_current",
-           "series_nodes", "hermite_series_current", "RF_NODES", "SERIES_RTOL", "SERIES_NODE_SPACING"]
+__all__ = ["rf_phase_average", "rf_electron_current", "RFAveraged", "leakage_current", "RF_NODES"]
 
 #: quadrature nodes per smooth piece of the phase average (knee and saturation regions);
 #: relative error < 1e-4 against adaptive quadrature for A/T_e <= 30 (tests/test_distortions_physics.py)
@@ -87,6 +63,11 @@ def _chebyshev_nodes(m: int) -> np.ndarray:
 
 
 _CHEB = _chebyshev_nodes(RF_NODES)
+#: Gauss-Legendre nodes per phase interval for models that are not sums of Maxwellians
+#: (:class:`RFAveraged`); relative error < 1e-5 against adaptive quadrature for A/T_e <= 30
+#: (tests/test_strategies.py)
+RF_GENERIC_NODES = 24
+_GLG_X, _GLG_W = np.polynomial.legendre.leggauss(RF_GENERIC_NODES)
 
 
 def rf_phase_average(x, a, geometry: str, *, probe_radius=None, debye_length=None):
@@ -166,33 +147,17 @@ def _rf_factor(x, a, geometry, radius=None, lam=None, slope=False):
     return (out, d_out) if slope else out
 
 
-def _rf_maxwellian(V, V_p, n_e, T_e, probe, sheath_expansion, V_rf):
-    """RF-averaged electron current of one Maxwellian population (unchecked)."""
+def _rf_maxwellian(V, V_p, n_e, T_e, probe, sheath_expansion, V_rf, slope=False):
+    """RF-averaged current of one Maxwellian population (unchecked); with ``slope``, (I, dI/dV)."""
     x = (V - V_p) / T_e
     lam = None
     if sheath_expansion and probe.geometry == "planar":
         lam = np.sqrt(EPS0 * T_e / (np.maximum(n_e, 1.0) * E_CHARGE))
-    return _saturation(n_e, T_e, probe.area) * _rf_factor(x, V_rf / T_e, probe.geometry, probe.radius, lam)
-
-
-def _rf_maxwellian_with_slope(V, V_p, n_e, T_e, probe, sheath_expansion, V_rf):
-    """(current, dI/dV) of one RF-averaged Maxwellian population (unchecked)."""
-    x = (V - V_p) / T_e
-    lam = None
-    if sheath_expansion and probe.geometry == "planar":
-        lam = np.sqrt(EPS0 * T_e / (np.maximum(n_e, 1.0) * E_CHARGE))
-    value, d = _rf_factor(x, V_rf / T_e, probe.geometry, probe.radius, lam, slope=True)
     I_es = _saturation(n_e, T_e, probe.area)
+    if not slope:
+        return I_es * _rf_factor(x, V_rf / T_e, probe.geometry, probe.radius, lam)
+    value, d = _rf_factor(x, V_rf / T_e, probe.geometry, probe.radius, lam, slope=True)
     return I_es * value, (I_es / T_e) * d
-
-
-def _rf_electron_current_with_slope(V, V_p, n_e, T_e, V_rf, probe, hot_fraction=None, T_hot=None,
-                                    sheath_expansion=False):
-    if hot_fraction is None:
-        return _rf_maxwellian_with_slope(V, V_p, n_e, T_e, probe, sheath_expansion, V_rf)
-    c, dc = _rf_maxwellian_with_slope(V, V_p, (1.0 - hot_fraction) * n_e, T_e, probe, sheath_expansion, V_rf)
-    h, dh = _rf_maxwellian_with_slope(V, V_p, hot_fraction * n_e, T_hot, probe, sheath_expansion, V_rf)
-    return c + h, dc + dh
 
 
 def rf_electron_current(V, V_p, n_e, T_e, V_rf, probe: Probe, *, hot_fraction=None, T_hot=None,
@@ -209,119 +174,77 @@ def rf_electron_current(V, V_p, n_e, T_e, V_rf, probe: Probe, *, hot_fraction=No
     _positive("V_rf", V_rf, allow_zero=True)
     if not isinstance(probe, Probe):
         raise ValueError("probe must be a bayesprobe.Probe")
-    return _rf_electron_current(V, V_p, n_e, T_e, V_rf, probe, hot_fraction, T_hot, sheath_expansion)
+    return _sum_groups(_rf_maxwellian, V, V_p, maxwellian_groups(n_e, T_e, hot_fraction, T_hot), probe,
+                       sheath_expansion, False, V_rf)
 
 
-def _rf_electron_current(V, V_p, n_e, T_e, V_rf, probe, hot_fraction=None, T_hot=None, sheath_expansion=False):
-    if hot_fraction is None:
-        return _rf_maxwellian(V, V_p, n_e, T_e, probe, sheath_expansion, V_rf)
-    cold = _rf_maxwellian(V, V_p, (1.0 - hot_fraction) * n_e, T_e, probe, sheath_expansion, V_rf)
-    hot = _rf_maxwellian(V, V_p, hot_fraction * n_e, T_hot, probe, sheath_expansion, V_rf)
-    return cold + hot
+class RFAveraged(ElectronModel):
+    """Any electron model seen through a sinusoidal plasma-potential oscillation V_p + V_rf sin(wt).
 
-
-#: series-resistance solve: stop when |I - f(V - I R)| <= SERIES_RTOL * max(|I|, 1e-6 max_row |I|), then take
-#: one last Newton step. With the exact slope that step leaves an error of order (residual)^2, far below
-#: 1e-10 |I|; the residual tolerance itself is 1e-4 of the smallest proportional noise a sweep shows (1 %),
-#: and because the last step is always taken, elements stopping one iteration earlier or later differ by
-#: that quadratic remainder only, so the log-posterior stays smooth for finite-difference derivatives.
-SERIES_RTOL = 1e-6
-
-
-def series_resistance_current(f, V, R, *, fprime=None, rtol: float = SERIES_RTOL, max_iter: int = 60,
-                              step: float = 1e-6):
-    """Solve I = f(V - I R) for every element at once; returns I with the broadcast shape.
-
-    Parameters
-    ----------
-    f : callable
-        The plasma characteristic, increasing in its argument and elementwise: ``f(v)``
-        returns the current at every voltage of any array ``v`` (its own parameters
-        scalars; :func:`bayesprobe.probe_current` handles parameter arrays).
-    V : array_like
-        Applied bias (V).
-    R : array_like
-        Series resistance (ohm), >= 0, broadcast against ``V`` (e.g. shape (k, 1)).
-    fprime : callable, optional
-        df/dv; without it the slope is a forward difference with ``step`` (V).
-    rtol : float
-        Residual tolerance relative to max(|I|, 1e-6 max_row |I|) (an absolute floor near
-        the floating potential where I passes through zero); a final Newton step follows.
+    The current is the phase average of the wrapped model's current (module docstring). A model
+    made of Maxwellian groups (:meth:`ElectronModel.groups`) is averaged group by group with the
+    Bessel closed form and the split quadrature of :func:`rf_phase_average`; any other model by
+    Gauss-Legendre quadrature of its own current on the two phase intervals either side of the
+    phase where the probe crosses V_p (where its slope may jump). Everything else (parameters,
+    temperatures) is the wrapped model's; ``V_rf`` comes from the parameter columns.
     """
-    _finite("V", V)
-    _positive("R", R, allow_zero=True)
-    if fprime is None:
-        def both(v, flat):
-            fv = f(v)
-            return fv, (f(v + step) - fv) / step
-    else:
-        def both(v, flat):
-            return f(v), fprime(v)
-    return _solve_series(both, np.asarray(V, float), np.asarray(R, float), rtol, max_iter)
+
+    def __init__(self, model: ElectronModel):
+        self.model = model
+        self.name = model.name
+        self.parameter_names = model.parameter_names
+        self.temperature_names = model.temperature_names
+        self.two_temperature = model.two_temperature
+        self.complexity = model.complexity
+
+    def groups(self, cols):
+        return self.model.groups(cols)
+
+    def screening_temperature(self, params):
+        return self.model.screening_temperature(params)
+
+    def effective_temperature(self, params):
+        return self.model.effective_temperature(params)
+
+    def hottest_temperature(self, params):
+        return self.model.hottest_temperature(params)
+
+    def coldest_temperature(self, params):
+        return self.model.coldest_temperature(params)
+
+    def current(self, V, cols, probe, *, sheath_expansion=False, slope=False):
+        groups = self.model.groups(cols)
+        if groups is not None:
+            return _sum_groups(_rf_maxwellian, V, cols["V_p"], groups, probe, sheath_expansion, slope, cols["V_rf"])
+        return _phase_average(self.model, V, cols, probe, sheath_expansion, slope)
+
+    def __repr__(self):
+        return f"RFAveraged({self.model!r})"
 
 
-def _solve_series(f, V, R, rtol=SERIES_RTOL, max_iter=60):
-    """Safeguarded Newton iteration on g(I) = I - f(V - I R), g'(I) = 1 + R f'(V - I R) >= 1.
-
-    ``f(v, flat)`` returns the characteristic and its slope at voltages ``v`` for the
-    elements ``flat`` (indices into the broadcast grid of V and R; ``None`` = the whole
-    grid), so after the first step the iteration runs on the elements not yet converged
-    only. The start is one Newton step from I = 0; a step leaving the bracket
-    [min(0, f(V)), max(0, f(V))] (shrunk as the signs of g are seen) is replaced by
-    bisection. Converged elements take one last Newton step.
-    """
-    V, R = np.broadcast_arrays(np.asarray(V, float), np.asarray(R, float))
-    shape = V.shape
-    f0, s0 = f(V, None)
-    f0 = np.broadcast_to(f0, shape)
-    lo = np.minimum(f0, 0.0)
-    hi = np.maximum(f0, 0.0)
-    I = np.clip(f0 / (1.0 + R * np.maximum(s0, 0.0)), lo, hi)          # one Newton step from I = 0
-    Ig = np.abs(f0)
-    row = np.max(Ig, axis=-1, keepdims=True) if Ig.ndim else Ig
-    floor = 1e-6 * row                                                   # absolute floor where I passes through 0
-    dx_old = hi - lo                                                     # the step before the last (rtsafe)
-    active = None                                                        # None: every element (no gathers)
-    Vf, Rf = V, R
-    for _ in range(max_iter):
-        if active is None:
-            Ia, Ra, fa, sa = I, R, *f(V - I * R, None)
-            lo_a, hi_a, fl, dxo = lo, hi, floor, dx_old
-        else:
-            Ia, Ra = I[active], Rf[active]
-            fa, sa = f(Vf[active] - Ia * Ra, active)
-            lo_a, hi_a, fl, dxo = lo[active], hi[active], floor[active], dx_old[active]
-        g = Ia - fa
-        lo_a = np.where(g < 0, Ia, lo_a)
-        hi_a = np.where(g > 0, Ia, hi_a)
-        step = g / (1.0 + Ra * np.maximum(sa, 0.0))
-        newton = Ia - step
-        # Newton only strictly inside the bracket and at least halving the step before the last
-        # (Numerical Recipes' rtsafe): a flat saturation branch next to the steep exponential
-        # otherwise sends Newton back and forth between the two ends of the bracket
-        tol = rtol * np.maximum(np.abs(Ia), fl) + 1e-300
-        done = np.abs(g) <= tol
-        inside = np.isfinite(newton) & (newton > lo_a) & (newton < hi_a) & (done | (2.0 * np.abs(step) <= np.abs(dxo)))
-        I_new = np.where(inside, newton, np.where(done, Ia, 0.5 * (lo_a + hi_a)))
-        dx_new = np.abs(I_new - Ia)
-        done |= hi_a - lo_a <= tol
-        if active is None:
-            I = np.array(np.broadcast_to(I_new, shape)).ravel()
-            lo = np.array(np.broadcast_to(lo_a, shape)).ravel()
-            hi = np.array(np.broadcast_to(hi_a, shape)).ravel()
-            floor = np.array(np.broadcast_to(fl, shape)).ravel()
-            dx_old = np.array(np.broadcast_to(np.maximum(dxo, dx_new), shape)).ravel()
-            dx_last = np.array(np.broadcast_to(dx_new, shape)).ravel()
-            Vf, Rf = V.ravel(), R.ravel()
-            active = np.flatnonzero(~np.broadcast_to(done, shape))
-        else:
-            dx_old[active] = dx_last[active]
-            dx_last[active] = dx_new
-            I[active], lo[active], hi[active] = I_new, lo_a, hi_a
-            active = active[~done]
-        if active.size == 0:
-            break
-    return I.reshape(shape)
+def _phase_average(model, V, cols, probe, sheath_expansion, slope):
+    """(1/pi) int_0^pi I(V + A cos(theta)) d theta of any model's current (and of its slope), by
+    Gauss-Legendre quadrature on [0, theta*] and [theta*, pi], theta* the phase where the probe
+    crosses V_p (cos theta* = (V_p - V)/A, clipped to [-1, 1]). The shift V_p -> V_p - A cos(theta)
+    is applied to the plasma potential, so the model sees one voltage per node."""
+    V = np.asarray(V, float)
+    V_p, A = cols["V_p"], cols["V_rf"]
+    shape = np.broadcast_shapes(V.shape, np.shape(V_p), np.shape(A))
+    with np.errstate(divide="ignore", invalid="ignore"):
+        c = np.where(A > 0, (V_p - V) / A, np.sign(V_p - V))
+    th = np.arccos(np.clip(np.broadcast_to(c, shape), -1.0, 1.0))[..., None]
+    node = _GLG_X.reshape((1,) * len(shape) + (-1,))
+    thetas = np.concatenate([0.5 * th * (1.0 + node), th + 0.5 * (np.pi - th) * (1.0 + node)], axis=-1)
+    weights = np.concatenate([0.5 * th * _GLG_W, 0.5 * (np.pi - th) * _GLG_W], axis=-1) / np.pi
+    shifted = dict(cols)
+    shifted["V_p"] = np.asarray(V_p)[..., None] - np.asarray(A)[..., None] * np.cos(thetas)
+    for name, value in cols.items():
+        if name != "V_p":
+            shifted[name] = np.asarray(value)[..., None]
+    out = model.current(V[..., None], shifted, probe, sheath_expansion=sheath_expansion, slope=slope)
+    if slope:
+        return np.sum(weights * out[0], axis=-1), np.sum(weights * out[1], axis=-1)
+    return np.sum(weights * out, axis=-1)
 
 
 def leakage_current(V, conductance, offset):
@@ -330,149 +253,3 @@ def leakage_current(V, conductance, offset):
     _finite("conductance", conductance)
     _finite("offset", offset)
     return np.asarray(conductance, float) * np.asarray(V, float) + np.asarray(offset, float)
-
-
-# ---------------------------------------------------------------------------------------------
-# Series resistance by interpolation on the parametric curve (the sampler's hot path)
-# ---------------------------------------------------------------------------------------------
-#: core node spacing, in units of the smallest electron temperature of the row (see
-#: :func:`series_nodes`); the cubic Hermite error on an exponential is h^4/384 = 1.3e-6 relative
-SERIES_NODE_SPACING = 0.15
-#: the core reaches this many temperatures below V_p - V_rf and this many above V_p + V_rf
-_CORE_BELOW, _CORE_ABOVE = 8.0, 3.0
-#: from the core down to 20 temperatures below V_p - V_rf (the electron current there is e^-20 =
-#: 2e-9 of its saturation value) the spacing grows geometrically with the distance from V_p by
-#: this ratio (0.4-1 T_e: Hermite error (h/T_e)^4/384 times an electron current below e^-8 I_es)
-_MID_BELOW, _MID_RATIO = 20.0, 1.05
-#: geometric growth of the node spacing beyond (spacing / distance from V_p)
-_TAIL_RATIO = 1.1
-#: extra nodes on both sides of each break point (V_p and, with RF, V_p +- V_rf), in temperatures:
-#: the ion and electron Child-law terms grow as |V - V_p|^(3/4) and the phase average changes
-#: its form at V_p +- V_rf, so the interpolant is refined geometrically towards them
-_GRADED = np.array([1e-6, 1e-5, 1e-4, 3e-4, 1e-3, 2e-3, 4e-3, 0.01, 0.02, 0.04, 0.08])
-#: above V_p the ions are repelled as exp(-(V - V_p)/T_i): nodes at these multiples of T_i
-_ION_GRADED = np.array([0.25, 0.5, 1.0, 2.0, 3.0, 4.0, 6.0, 9.0, 14.0])
-
-
-def _break_coefficients(with_rf: bool):
-    """(a, t) with the break-point nodes at V_p + a A + t T: a pair 1e-9 T either side of V_p (each
-    side of the knee gets its own slope), the graded nodes on both sides of V_p and, with RF, of
-    V_p +- A."""
-    g = np.concatenate([[1e-9], _GRADED])
-    t = [-g, g]
-    a = [np.zeros(g.size), np.zeros(g.size)]
-    if with_rf:
-        for side in (-1.0, 1.0):
-            t += [np.zeros(1), -_GRADED, _GRADED]
-            a += [np.full(1, side), np.full(_GRADED.size, side), np.full(_GRADED.size, side)]
-    return np.concatenate(a), np.concatenate(t)
-
-
-_BREAKS, _BREAKS_RF = _break_coefficients(False), _break_coefficients(True)
-
-
-def series_nodes(v_lo, v_hi, V_p, T_min, A=0.0, T_max=None, T_i=None) -> np.ndarray:
-    """Sheath-voltage nodes for :func:`hermite_series_current`, one sorted row per parameter set.
-
-    All arguments have shape (k, 1) (or broadcast to it): the sheath-voltage range of the
-    sweep [v_lo, v_hi], the plasma potential, the smallest electron temperature (eV) and the
-    RF amplitude A (V); ``T_i`` (eV) the ion temperature. Nodes: a core from V_p - A - 8 T_min
-    to V_p + A + 3 T_min spaced ``SERIES_NODE_SPACING`` T_min; down to V_p - A - 20 T_min spacings
-    growing geometrically with the distance from V_p (ratio 1.05), beyond that and above the core
-    ratio 1.1; the break points V_p and V_p +- A with geometrically graded nodes on
-    both sides (down to 1e-6 T_min; a pair 1e-9 T_min either side of V_p gives each side of
-    the knee its own slope); nodes 0.25-14 T_i above V_p; both ends. With a hotter group (``T_max`` > T_min, two-temperature electrons) a second core
-    spaced ``SERIES_NODE_SPACING`` T_max continues down to V_p - A - 20 T_max. Nodes outside
-    [v_lo, v_hi] are moved onto the ends (zero-length intervals), so the node set of a row
-    depends on its own parameters only, whatever the other rows need.
-    """
-    T_max = T_min if T_max is None else T_max
-    v_lo, v_hi, V_p, T, A, T_hot = np.broadcast_arrays(*(np.asarray(x, float)
-                                                         for x in (v_lo, v_hi, V_p, T_min, A, T_max)))
-    h = SERIES_NODE_SPACING * T
-    core_lo = V_p - A - _CORE_BELOW * T
-    core_hi = V_p + A + _CORE_ABOVE * T
-    n_core = int(np.ceil(np.max((np.minimum(core_hi, v_hi) - np.maximum(core_lo, v_lo)) / h))) + 1
-    n_core = max(n_core, 1)
-    start = np.maximum(core_lo, v_lo)
-    start = core_lo + np.floor((start - core_lo) / h) * h          # on the row's own lattice
-    core = np.minimum(start + h * np.arange(n_core), core_hi)
-    d_mid = A + _CORE_BELOW * T
-    n_mid = int(np.ceil(np.log((A + _MID_BELOW * T) / d_mid).max() / np.log(_MID_RATIO)))
-    extra = [np.maximum(V_p - d_mid * _MID_RATIO ** np.arange(1, n_mid + 1), V_p - A - _MID_BELOW * T)]
-    core_lo = V_p - A - _MID_BELOW * T
-    if np.any(T_hot > T):
-        h_hot = SERIES_NODE_SPACING * T_hot
-        hot_lo = V_p - A - _MID_BELOW * T_hot
-        n_hot = int(np.ceil(np.max((core_lo - np.maximum(hot_lo, v_lo)) / h_hot))) + 1
-        extra.append(np.maximum(core_lo - h_hot * np.arange(1, max(n_hot, 1) + 1), hot_lo))
-        core_lo = np.minimum(core_lo, hot_lo)
-    d_below = V_p - core_lo                                         # distances from V_p at the core ends
-    d_above = core_hi - V_p
-    n_below = int(np.ceil(np.max(np.log(np.maximum((V_p - v_lo) / d_below, 1.0)) / np.log(_TAIL_RATIO)))) + 1
-    n_above = int(np.ceil(np.max(np.log(np.maximum((v_hi - V_p) / d_above, 1.0)) / np.log(_TAIL_RATIO)))) + 1
-    below = V_p - d_below * _TAIL_RATIO ** np.arange(1, n_below + 1)
-    above = V_p + d_above * _TAIL_RATIO ** np.arange(1, n_above + 1)
-    # break points as V_p + a A + t T (+ T_i multiples): one broadcast instead of a dozen arrays
-    with_rf = bool(np.any(A > 0))
-    a_coef, t_coef = _BREAKS_RF if with_rf else _BREAKS
-    breaks = [V_p + A * a_coef + T * t_coef]
-    if T_i is not None:
-        breaks.append(V_p + np.asarray(T_i, float) * _ION_GRADED)
-    nodes = np.concatenate([v_lo, v_hi, core, below, above] + extra + breaks, axis=-1)
-    return np.sort(np.clip(nodes, v_lo, v_hi), axis=-1)
-
-
-def hermite_series_current(V, R, nodes, f_nodes, slope_nodes) -> np.ndarray:
-    """The series-resistance current at applied voltages ``V`` from the characteristic at ``nodes``.
-
-    With the sheath at voltage v the applied voltage is W(v) = v + R f(v) and the current f(v):
-    a parametric form of the measured characteristic I(W) that needs no solve. W is increasing
-    (dW/dv = 1 + R f' >= 1), so each V lies in one interval [W_j, W_j+1] of every row, found by
-    one sorted search over all rows at once. I there is the cubic Hermite interpolant of the
-    values f_j and slopes dI/dW = f'_j / (1 + R f'_j), limited to keep the interpolant
-    monotone (continuous with a continuous slope in V). Shapes: V (k, n) or (n,), R (k, 1),
-    the node arrays (k, M), whose first and last nodes enclose the sheath voltages of the
-    smallest and largest V of the row.
-    """
-    W = nodes + R * f_nodes
-    D = slope_nodes / (1.0 + R * np.maximum(slope_nodes, 0.0))
-    k, M = W.shape
-    # Fritsch-Carlson limiter (SIAM J. Numer. Anal. 17, 238 (1980)): I(W) is increasing, and a
-    # node slope above 3x either neighbouring secant would make the cubic overshoot. It matters
-    # only next to V_p, where the Child-law terms grow as |V - V_p|^(3/4) (an unbounded slope);
-    # on smooth stretches the exact slopes are far inside the limit. Zero-length intervals
-    # (nodes moved onto the ends) do not limit.
-    dW = np.diff(W, axis=-1)
-    with np.errstate(divide="ignore", invalid="ignore"):
-        sec = np.where(dW > 0, np.diff(f_nodes, axis=-1) / dW, np.inf)
-    inf = np.full((k, 1), np.inf)
-    cap = 3.0 * np.maximum(np.minimum(np.concatenate([inf, sec], axis=-1), np.concatenate([sec, inf], axis=-1)), 0.0)
-    D = np.clip(D, 0.0, cap)
-    V_in = np.asarray(V, float)
-    V = np.broadcast_to(V_in, (k, V_in.shape[-1]))
-    # each interval's cubic in t = (V - W_j)/(W_j+1 - W_j): c0 + t (c1 + t (c2 + t c3))
-    f0, f1 = f_nodes[:, :-1], f_nodes[:, 1:]
-    m0, m1 = dW * D[:, :-1], dW * D[:, 1:]
-    df = f1 - f0
-    with np.errstate(divide="ignore"):
-        inv = np.where(dW > 0, 1.0 / dW, 0.0)             # zero-length interval: t = 0, value f_j
-    table = [W[:, :-1], inv, f0, m0, 3.0 * df - 2.0 * m0 - m1, m0 + m1 - 2.0 * df]
-    n = V.shape[-1]
-    if V_in.ndim == 1 and np.all(V_in[1:] >= V_in[:-1]):
-        # one sorted sweep for every row: place the k M nodes among the n points (cheap), then the
-        # number of nodes at or below each point is a running count
-        pos = np.searchsorted(V_in, W, side="left") + (n + 1) * np.arange(k)[:, None]
-        j = np.cumsum(np.bincount(pos.ravel(), minlength=k * (n + 1)).reshape(k, n + 1), axis=1)[:, :n] - 1
-    else:
-        # one search over all rows, each row's values mapped into its own unit interval [2r, 2r + 1]
-        lo = W[:, :1]
-        span = W[:, -1:] - lo
-        span = np.where(span > 0, span, 1.0)
-        row = 2.0 * np.arange(k)[:, None]
-        j = np.searchsorted(((W - lo) / span + row).ravel(), ((V - lo) / span + row).ravel(), side="right") - 1
-        j = j.reshape(V.shape) - M * np.arange(k)[:, None]
-    j = np.clip(j, 0, M - 2) + (M - 1) * np.arange(k)[:, None]
-    w0, inv, c0, c1, c2, c3 = (np.take(col, j) for col in table)     # take: ~4x faster than fancy indexing
-    t = np.clip((V - w0) * inv, 0.0, 1.0)
-    return c0 + t * (c1 + t * (c2 + t * c3))

@@ -118,8 +118,12 @@ def _attracted_slope(chi, geometry, probe_radius=None, debye_length=None):
     return np.where(pos, d, 0.0)
 
 
-def _maxwellian_with_slope(V, V_p, n_e, T_e, probe, sheath_expansion):
-    """(current, dI/dV) of one Maxwellian population (unchecked; for the series-resistance solve)."""
+def _maxwellian(V, V_p, n_e, T_e, probe, sheath_expansion, slope=False):
+    """Current of one Maxwellian population (unchecked); with ``slope`` also dI/dV: (I, dI/dV).
+
+    exp(min(x, 0)) below V_p, growth factor above; both equal 1 at V_p, so their sum minus 1
+    is the piecewise function without masks (cheaper on the sampler's hot path).
+    """
     x = (V - V_p) / T_e
     lam = None
     if sheath_expansion and probe.geometry == "planar":
@@ -127,32 +131,35 @@ def _maxwellian_with_slope(V, V_p, n_e, T_e, probe, sheath_expansion):
     I_es = _saturation(n_e, T_e, probe.area)
     ex = np.exp(np.minimum(x, 0.0))
     if probe.geometry == "planar" and lam is None:
-        return I_es * ex, np.where(x < 0.0, I_es * ex / T_e, 0.0)
-    value = I_es * (ex + _attracted(x, probe.geometry, probe.radius, lam) - 1.0)
-    slope = (I_es / T_e) * np.where(x < 0.0, ex, _attracted_slope(x, probe.geometry, probe.radius, lam))
-    return value, slope
-
-
-def _electron_current_with_slope(V, V_p, n_e, T_e, probe, hot_fraction=None, T_hot=None, sheath_expansion=False):
-    if hot_fraction is None:
-        return _maxwellian_with_slope(V, V_p, n_e, T_e, probe, sheath_expansion)
-    c, dc = _maxwellian_with_slope(V, V_p, (1.0 - hot_fraction) * n_e, T_e, probe, sheath_expansion)
-    h, dh = _maxwellian_with_slope(V, V_p, hot_fraction * n_e, T_hot, probe, sheath_expansion)
-    return c + h, dc + dh
-
-
-def _maxwellian(V, V_p, n_e, T_e, probe, sheath_expansion):
-    x = (V - V_p) / T_e
-    lam = None
-    if sheath_expansion and probe.geometry == "planar":
-        lam = np.sqrt(EPS0 * T_e / (np.maximum(n_e, 1.0) * E_CHARGE))
-    elif probe.geometry == "planar":
         # flat saturation: the factor is exp(min(x, 0))
-        return _saturation(n_e, T_e, probe.area) * np.exp(np.minimum(x, 0.0))
-    # exp(min(x,0)) below V_p, growth factor above; both equal 1 at V_p, so their sum minus 1
-    # is the piecewise function without masks (cheaper on the sampler's hot path)
-    return _saturation(n_e, T_e, probe.area) * (np.exp(np.minimum(x, 0.0))
-                                                + _attracted(x, probe.geometry, probe.radius, lam) - 1.0)
+        value = I_es * ex
+        return (value, np.where(x < 0.0, value / T_e, 0.0)) if slope else value
+    value = I_es * (ex + _attracted(x, probe.geometry, probe.radius, lam) - 1.0)
+    if not slope:
+        return value
+    return value, (I_es / T_e) * np.where(x < 0.0, ex, _attracted_slope(x, probe.geometry, probe.radius, lam))
+
+
+def _sum_groups(one, V, V_p, groups, probe, sheath_expansion, slope, *extra):
+    """Sum of ``one(V, V_p, n, T, probe, sheath_expansion, *extra, slope=slope)`` over the
+    Maxwellian groups ``(n, T)``: the current, or (current, dI/dV) with ``slope``."""
+    total = None
+    for n, T in groups:
+        part = one(V, V_p, n, T, probe, sheath_expansion, *extra, slope=slope)
+        if total is None:
+            total = part
+        elif slope:
+            total = (total[0] + part[0], total[1] + part[1])
+        else:
+            total = total + part
+    return total
+
+
+def maxwellian_groups(n_e, T_e, hot_fraction=None, T_hot=None):
+    """The Maxwellian groups (density, temperature) of one population or of a cold + hot pair."""
+    if hot_fraction is None:
+        return ((n_e, T_e),)
+    return ((1.0 - hot_fraction) * n_e, T_e), (hot_fraction * n_e, T_hot)
 
 
 def maxwellian_electron_current(V, V_p, n_e, T_e, probe: Probe, *, sheath_expansion=False):
@@ -197,9 +204,8 @@ def electron_current(V, V_p, n_e, T_e, probe: Probe, *, hot_fraction=None, T_hot
     return _electron_current(V, V_p, n_e, T_e, probe, hot_fraction, T_hot, sheath_expansion)
 
 
-def _electron_current(V, V_p, n_e, T_e, probe, hot_fraction=None, T_hot=None, sheath_expansion=False):
-    if hot_fraction is None:
-        return _maxwellian(V, V_p, n_e, T_e, probe, sheath_expansion)
-    cold = _maxwellian(V, V_p, (1.0 - hot_fraction) * n_e, T_e, probe, sheath_expansion)
-    hot = _maxwellian(V, V_p, hot_fraction * n_e, T_hot, probe, sheath_expansion)
-    return cold + hot
+def _electron_current(V, V_p, n_e, T_e, probe, hot_fraction=None, T_hot=None, sheath_expansion=False,
+                      slope=False):
+    """Unchecked electron current (or (current, dI/dV) with ``slope``) of one or two Maxwellian groups."""
+    return _sum_groups(_maxwellian, V, V_p, maxwellian_groups(n_e, T_e, hot_fraction, T_hot), probe,
+                       sheath_expansion, slope)

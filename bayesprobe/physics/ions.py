@@ -5,6 +5,14 @@ voltages of shape ``(n,)`` give ``(k, n)``). They return the ion current as a
 positive magnitude; the total probe current is I = I_e - I_i. SI units,
 temperatures in eV.
 
+Each theory is also a strategy object in :data:`ION_THEORIES` (name -> :class:`IonTheory`;
+``ModelConfig.ion_theory``): ``current(..., slope=False)`` gives the current and, on request,
+its slope dI/dV from one body; ``kinks`` says whether the current has slope kinks away from
+V_p (the interpolated series-resistance solve then uses Newton); ``check(probe)`` refuses a
+probe the theory does not apply to; ``resolve(probe)`` is the theory that applies (``auto``
+on a planar probe is ``thin-sheath``). Adding a theory: one subclass registered in
+:data:`ION_THEORIES`, and tests.
+
 Theories and where they hold (xi = r_p / lambda_D):
 
 ``thin-sheath``
@@ -51,10 +59,8 @@ from .constants import E_CHARGE, EPS0
 from .electrons import _attracted, _attracted_slope
 from .geometry import Probe
 
-__all__ = ["ION_THEORIES", "BOHM_FACTORS", "bohm_factor", "ion_current",
+__all__ = ["ION_THEORIES", "IonTheory", "ion_theory", "BOHM_FACTORS", "bohm_factor", "ion_current",
            "thin_sheath_ion_current", "oml_ion_current", "abr_ion_current"]
-
-ION_THEORIES = ("thin-sheath", "oml", "abr", "auto")
 
 #: named sheath-edge density factors n_s/n_0
 BOHM_FACTORS = {"boltzmann": float(np.exp(-0.5)), "0.61": 0.61, "fluid": 0.5}
@@ -105,52 +111,32 @@ def thin_sheath_ion_current(V, V_p, n_i, T_e, probe: Probe, ion_mass, *, n_e=Non
     return _thin_sheath(V, V_p, n_i, T_e, probe, ion_mass, n_e, T_i, bohm_factor, sheath_expansion)
 
 
-def _thin_sheath(V, V_p, n_i, T_e, probe, ion_mass, n_e, T_i, bohm_factor, sheath_expansion):
-    I_B = bohm_factor * E_CHARGE * n_i * probe.area * np.sqrt(E_CHARGE * T_e / ion_mass)
-    if sheath_expansion:
-        n_for_debye = n_i if n_e is None else n_e
-        lam = np.sqrt(EPS0 * T_e / (n_for_debye * E_CHARGE))
-        u = np.sqrt(np.maximum(V_p - V, 0.0) / T_e)
-        s = (_CHILD / probe.radius) * lam * (u * np.sqrt(u))  # s/r_p, (V0/T_e)^(3/4) via two roots
-        ratio = 1.0 + s
-        I_B = I_B * (ratio if probe.geometry == "cylindrical" else ratio * ratio)
-    return I_B * _repelled(V, V_p, T_i)
+def _thin_sheath(V, V_p, n_i, T_e, probe, ion_mass, n_e, T_i, bohm_factor, sheath_expansion, slope=False):
+    """Unchecked thin-sheath ion current; with ``slope``, (current, dI/dV).
 
-
-def _thin_sheath_with_slope(V, V_p, n_i, T_e, probe, ion_mass, n_e, T_i, bohm_factor, sheath_expansion):
-    """(thin-sheath ion current, its derivative in V). Below V_p the Child-law edge grows as
-    s proportional to (V_p - V)^(3/4), so ds/dV = -3 s / (4 (V_p - V)) (unbounded at V_p-, where
-    it is finite only through V_p - V > 0); above V_p the repelled factor gives -I / T_i."""
+    Below V_p the Child-law edge grows as s proportional to (V_p - V)^(3/4), so
+    ds/dV = -3 s / (4 (V_p - V)) (unbounded at V_p-, where it is finite only through
+    V_p - V > 0); above V_p the repelled factor gives -I / T_i.
+    """
     I_B = bohm_factor * E_CHARGE * n_i * probe.area * np.sqrt(E_CHARGE * T_e / ion_mass)
     rep = _repelled(V, V_p, T_i)
-    above = V > V_p
-    if sheath_expansion:
-        n_for_debye = n_i if n_e is None else n_e
-        lam = np.sqrt(EPS0 * T_e / (n_for_debye * E_CHARGE))
-        gap = np.maximum(V_p - V, 0.0)
-        u = np.sqrt(gap / T_e)
-        s = (_CHILD / probe.radius) * lam * (u * np.sqrt(u))
-        p = 1.0 if probe.geometry == "cylindrical" else 2.0
-        ratio = 1.0 + s
-        area = ratio if p == 1.0 else ratio * ratio
-        with np.errstate(divide="ignore", invalid="ignore"):
-            ds = np.where(gap > 0, -0.75 * s / gap, 0.0)
-        d_area = p * (1.0 if p == 1.0 else ratio) * ds
-        I = I_B * area * rep
-        dI = I_B * d_area * rep - np.where(above, I / T_i, 0.0)
-        return I, dI
-    I = I_B * rep
-    return I, np.where(above, -I / T_i, 0.0)
-
-
-def _oml_with_slope(V, V_p, n_i, probe, ion_mass, T_i):
-    """(OML ion current, its derivative in V): d/dV = -(I_th / T_i) d/dchi, chi = (V_p - V)/T_i."""
-    I_th = E_CHARGE * n_i * probe.area * np.sqrt(E_CHARGE * T_i / (2.0 * np.pi * ion_mass))
-    chi = (V_p - V) / T_i
-    rep = np.exp(np.minimum(chi, 0.0))
-    I = I_th * (rep + _attracted(chi, probe.geometry) - 1.0)
-    d_chi = np.where(chi < 0, rep, 0.0) + _attracted_slope(chi, probe.geometry)
-    return I, -(I_th / T_i) * d_chi
+    if not sheath_expansion:
+        I = I_B * rep
+        return (I, np.where(V > V_p, -I / T_i, 0.0)) if slope else I
+    n_for_debye = n_i if n_e is None else n_e
+    lam = np.sqrt(EPS0 * T_e / (n_for_debye * E_CHARGE))
+    gap = np.maximum(V_p - V, 0.0)
+    u = np.sqrt(gap / T_e)
+    s = (_CHILD / probe.radius) * lam * (u * np.sqrt(u))  # s/r_p, (V0/T_e)^(3/4) via two roots
+    ratio = 1.0 + s
+    cylinder = probe.geometry == "cylindrical"
+    I = I_B * (ratio if cylinder else ratio * ratio) * rep
+    if not slope:
+        return I
+    with np.errstate(divide="ignore", invalid="ignore"):
+        ds = np.where(gap > 0, -0.75 * s / gap, 0.0)
+    d_area = (1.0 if cylinder else 2.0 * ratio) * ds
+    return I, I_B * d_area * rep - np.where(V > V_p, I / T_i, 0.0)
 
 
 def oml_ion_current(V, V_p, n_i, probe: Probe, ion_mass, *, T_i=0.026):
@@ -161,11 +147,18 @@ def oml_ion_current(V, V_p, n_i, probe: Probe, ion_mass, *, T_i=0.026):
     return _oml(V, V_p, n_i, probe, ion_mass, T_i)
 
 
-def _oml(V, V_p, n_i, probe, ion_mass, T_i):
+def _oml(V, V_p, n_i, probe, ion_mass, T_i, slope=False):
+    """Unchecked OML ion current; with ``slope``, (current, dI/dV): d/dV = -(I_th / T_i) d/dchi,
+    chi = (V_p - V)/T_i."""
     I_th = E_CHARGE * n_i * probe.area * np.sqrt(E_CHARGE * T_i / (2.0 * np.pi * ion_mass))
     chi = (V_p - V) / T_i
     # attracted branch below V_p, Boltzmann fall-off above; both are 1 at V_p
-    return I_th * (np.exp(np.minimum(chi, 0.0)) + _attracted(chi, probe.geometry) - 1.0)
+    rep = np.exp(np.minimum(chi, 0.0))
+    I = I_th * (rep + _attracted(chi, probe.geometry) - 1.0)
+    if not slope:
+        return I
+    d_chi = np.where(chi < 0, rep, 0.0) + _attracted_slope(chi, probe.geometry)
+    return I, -(I_th / T_i) * d_chi
 
 
 def abr_ion_current(V, V_p, n_i, T_e, probe: Probe, ion_mass, *, n_e=None, T_i=0.026):
@@ -212,20 +205,130 @@ def ion_current(V, V_p, n_i, T_e, probe: Probe, ion_mass, *, theory="auto", n_e=
     """
     if theory not in ION_THEORIES:
         raise ValueError(f"ion collection theory must be one of {', '.join(ION_THEORIES)}, got {theory!r}")
-    if isinstance(probe, Probe) and probe.geometry == "planar" and theory in ("oml", "abr"):
+    if isinstance(probe, Probe) and probe.geometry == "planar" and not ION_THEORIES[theory].planar:
         raise ValueError(f"{theory} ion collection applies to cylindrical and spherical probes, not planar")
     _check(V, V_p, n_i, T_e, probe, ion_mass, T_i, n_e)
     _positive("bohm_factor", bohm_factor)
     return _ion_current(V, V_p, n_i, T_e, probe, ion_mass, theory, n_e, T_i, bohm_factor, sheath_expansion)
 
 
-def _ion_current(V, V_p, n_i, T_e, probe, ion_mass, theory, n_e, T_i, bohm_factor, sheath_expansion):
-    """Unchecked ion current (the sampler's hot path; callers validate)."""
-    if theory == "thin-sheath" or (theory == "auto" and probe.geometry == "planar"):
-        return _thin_sheath(V, V_p, n_i, T_e, probe, ion_mass, n_e, T_i, bohm_factor, sheath_expansion)
-    if theory == "oml":
-        return _oml(V, V_p, n_i, probe, ion_mass, T_i)
-    if theory == "abr":
+def _ion_current(V, V_p, n_i, T_e, probe, ion_mass, theory, n_e, T_i, bohm_factor, sheath_expansion,
+                 slope=False):
+    """Unchecked ion current of the theory named ``theory`` (or (current, dI/dV) with ``slope``)."""
+    return ION_THEORIES[theory].resolve(probe).current(V, V_p, n_i, T_e, probe, ion_mass, n_e, T_i, bohm_factor,
+                                                       sheath_expansion, slope=slope)
+
+
+# ---------------------------------------------------------------------------------------------
+# The theories as strategy objects: ModelConfig.ion_theory, looked up from its ion_collection name
+# ---------------------------------------------------------------------------------------------
+class IonTheory:
+    """Interface of an ion-collection theory.
+
+    ``current(V, V_p, n_i, T_e, probe, ion_mass, n_e, T_i, bohm_factor, sheath_expansion, *,
+    slope=False)`` returns the ion current (positive magnitude, A), or with ``slope=True`` the
+    pair (current, dI/dV); unchecked (the hot path). ``T_e`` is the screening temperature.
+    """
+
+    #: name used in options, files and summaries
+    name: str = ""
+    #: False when the theory needs a cylindrical or spherical probe
+    planar: bool = True
+    #: True when the current has slope kinks away from V_p (the interpolated series-resistance
+    #: solve then falls back to Newton)
+    kinks: bool = False
+    #: True when the theory includes orbital-motion-limited collection (OML; ``auto`` on
+    #: cylinders and spheres), whose cylinder current squared is linear in the bias
+    orbital: bool = False
+    #: True for the Bohm flux through the sheath edge (thin-sheath theory)
+    bohm_flux: bool = False
+
+    def current(self, V, V_p, n_i, T_e, probe, ion_mass, n_e, T_i, bohm_factor, sheath_expansion, *,
+                slope=False):
+        raise TypeError(f"{type(self).__name__} must define current()")
+
+    def check(self, probe: Probe) -> None:
+        """Raise ValueError when the theory does not apply to ``probe``."""
+        if probe.geometry == "planar" and not self.planar:
+            raise ValueError(f"ion_collection {self.name!r} needs a cylindrical or spherical probe; "
+                             "use thin-sheath or auto for planar probes")
+
+    def resolve(self, probe: Probe) -> "IonTheory":
+        """The theory that actually applies to ``probe`` (itself, except for ``auto``)."""
+        return self
+
+    def __repr__(self):
+        return f"{type(self).__name__}()"
+
+
+class ThinSheath(IonTheory):
+    name = "thin-sheath"
+    bohm_flux = True
+
+    def current(self, V, V_p, n_i, T_e, probe, ion_mass, n_e, T_i, bohm_factor, sheath_expansion, *,
+                slope=False):
+        return _thin_sheath(V, V_p, n_i, T_e, probe, ion_mass, n_e, T_i, bohm_factor, sheath_expansion, slope)
+
+
+class OML(IonTheory):
+    name = "oml"
+    planar = False
+    orbital = True
+
+    def current(self, V, V_p, n_i, T_e, probe, ion_mass, n_e, T_i, bohm_factor, sheath_expansion, *,
+                slope=False):
+        return _oml(V, V_p, n_i, probe, ion_mass, T_i, slope)
+
+
+class _Tabulated(IonTheory):
+    """A theory without an analytic slope: dI/dV is a forward difference of ``SLOPE_STEP`` volts."""
+
+    planar = False
+    #: the table rows and its edge are slope kinks at voltages that depend on the parameters
+    kinks = True
+    SLOPE_STEP = 1e-5
+
+    def current(self, V, V_p, n_i, T_e, probe, ion_mass, n_e, T_i, bohm_factor, sheath_expansion, *,
+                slope=False):
+        args = (V_p, n_i, T_e, probe, ion_mass, n_e, T_i)
+        I = self._value(V, *args)
+        if not slope:
+            return I
+        return I, (self._value(V + self.SLOPE_STEP, *args) - I) / self.SLOPE_STEP
+
+
+class ABR(_Tabulated):
+    name = "abr"
+
+    @staticmethod
+    def _value(V, V_p, n_i, T_e, probe, ion_mass, n_e, T_i):
         return _abr(V, V_p, n_i, T_e, probe, ion_mass, n_e, T_i)
-    return np.minimum(_oml(V, V_p, n_i, probe, ion_mass, T_i),
-                      _abr(V, V_p, n_i, T_e, probe, ion_mass, n_e, T_i))
+
+
+class Auto(_Tabulated):
+    """planar: thin-sheath; cylinder and sphere: the smaller of OML and ABR (module docstring)."""
+
+    name = "auto"
+    planar = True
+    orbital = True
+
+    @staticmethod
+    def _value(V, V_p, n_i, T_e, probe, ion_mass, n_e, T_i):
+        return np.minimum(_oml(V, V_p, n_i, probe, ion_mass, T_i), _abr(V, V_p, n_i, T_e, probe, ion_mass, n_e, T_i))
+
+    def resolve(self, probe):
+        return ION_THEORIES["thin-sheath"] if probe.geometry == "planar" else self
+
+
+#: name -> theory object (usable as a sequence of names: ``in``, ``', '.join``)
+ION_THEORIES: dict[str, IonTheory] = {t.name: t for t in (ThinSheath(), OML(), ABR(), Auto())}
+
+
+def ion_theory(name) -> IonTheory:
+    """The theory object of ``name`` (an :class:`IonTheory` is returned as it is)."""
+    if isinstance(name, IonTheory):
+        return name
+    try:
+        return ION_THEORIES[name]
+    except (KeyError, TypeError):
+        raise ValueError(f"ion collection theory must be one of {', '.join(ION_THEORIES)}, got {name!r}") from None
