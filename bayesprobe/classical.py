@@ -98,6 +98,7 @@ from .model import ModelConfig
 from .physics.constants import E_CHARGE, M_E
 from .physics.electrons import electron_saturation_current
 from .physics.formulary import child_sheath_thickness
+from .physics.ions import ION_THEORIES
 from .signal_tools import (clean_sweep, interpolated_root, line_fit, odd, savgol, savgol_noise_gain,
                            savgol_residual_noise, saturation_window, upward_crossings, window_ladder)
 
@@ -418,7 +419,7 @@ def _ion_density(result, config, I_is, T_e, V_p, V_f, Is_g, Vg):
         result.I_is = I_is
     if math.isfinite(T_e) and T_e > 0 and I_is > 0:
         result.n_i = float(I_is / (f_B * E_CHARGE * area * math.sqrt(E_CHARGE * T_e / M)))
-        if config.sheath_expansion or config.ion_collection != "thin-sheath":
+        if config.sheath_expansion or not ION_THEORIES[config.ion_collection].bohm_flux:
             # Bohm flux through the bare probe area: say so when the Child-law sheath at
             # V_f would grow the collecting area by more than 10 %
             s = float(child_sheath_thickness(max(V_p - V_f, 0.0), result.n_i, T_e))
@@ -463,7 +464,7 @@ def classical_analysis(voltage, current, config: ModelConfig) -> ClassicalResult
         return result
     probe = config.probe
     psi = planar_floating_drop(config.ion_mass_kg, config.bohm_factor)
-    oml_cylinder = probe.geometry == "cylindrical" and config.ion_collection in ("oml", "auto")
+    oml_cylinder = probe.geometry == "cylindrical" and config.ion_theory.orbital
     g = _Grid.of(V, I)
 
     knee = _knee_filter(g)

@@ -63,7 +63,7 @@ def _druyvesteyn_ion_current(result):
     """How the ion current is removed before differentiating: an I^2 line for a cylinder
     collecting orbital-motion-limited ions, else a straight line (None)."""
     probe = result.config.probe
-    if probe.geometry == "cylindrical" and result.config.ion_collection in ("oml", "auto"):
+    if probe.geometry == "cylindrical" and result.config.ion_theory.orbital:
         return "oml"
     return None
 
