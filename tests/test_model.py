@@ -1,8 +1,8 @@
 """The composed I-V model: floating potential, vectorisation, and input validation.
 
-References are named in each docstring ("notes §x" = the developer physics notes,
-``/work/shared/PHYSICS-NOTES.md``; their [D] values were computed from textbook formulas
-with numpy/scipy, independently of this package). "from memory" marks a reference not
+References are named in each docstring ("notes §x" = ``docs/physics-reference.md`` §x, the
+project's physics reference; its [D] values were computed from textbook formulas with
+numpy/scipy, independently of this package, by the snippets printed there). "from memory" marks a reference not
 confirmed while writing the test; "common practice, no source" a convention.
 """
 from __future__ import annotations

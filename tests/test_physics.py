@@ -9,7 +9,7 @@ Every test names its reference in its docstring:
 * textbook formulas (Lieberman & Lichtenberg 2005 = LL05; Hutchinson 2002 = Hut02;
   Mott-Smith & Langmuir 1926 = MSL26) and their analytic limits;
 * check values computed independently of this code in the developer physics notes
-  (``/work/shared/PHYSICS-NOTES.md``, cited as "notes §x.y"; values flagged [D] there
+  (``docs/physics-reference.md``, cited as "notes §x.y"; values flagged [D] there
   were computed with numpy/scipy from the textbook formulas, not with this package).
 
 "from memory" marks a reference that could not be confirmed while writing the test;
@@ -543,9 +543,8 @@ def test_child_sheath_table(ratio, s_over_lambda):
     V0/Te = 5 ... 100.
 
     Source: Child-law sheath with Bohm flux, LL05 ch. 6 (from memory); table notes §1.3 [D],
-    compared to the printed number of digits. The notes print 5.73 at V0/Te = 10, but their
-    own formula gives 1.01797 * 10^0.75 = 5.7245, i.e. 5.72: a rounding slip in the notes
-    (all other entries and the §5.2 case values agree with the formula).
+    compared to the printed number of digits (docs/physics-reference.md §1.3 gives 5.72453 at
+    V0/Te = 10: 1.01797 * 10^0.75).
     """
     n, Te = 1e16, 2.0
     s = F.child_sheath_thickness(ratio * Te, n, Te) / F.debye_length(n, Te)
