@@ -14,17 +14,17 @@ Oracles:
   ratios); it is met for both when the circuit is calibrated (a measured circuit resistance, a
   plasma-off sweep for the leakage line: bayesprobe.inference.instrument_priors).
 * Information loss, not sampler noise: on a clean sweep the leakage widening equals the Cramer-Rao
-  ratio (tests/distortion_information.py) within the Monte-Carlo error of two interval widths.
+  ratio (tests/cases/distortion_information.py) within the Monte-Carlo error of two interval widths.
 
 The always-run tests use a handful of sweeps (the binomial band is then loose: a smoke test); the
 ``slow`` tests use 40 sweeps per distortion (10 for the clean-sweep widths). Sweeps:
-tests/distortion_cases.py.
+tests/cases/distortions.py.
 """
 import numpy as np
 import pytest
 from scipy.stats import binom
 
-from distortion_cases import KINDS, covers, run_case
+from cases.distortions import KINDS, covers, run_case
 
 #: the quantity each distortion biases in the plain fit
 BIASED = {"rf": "T_e", "resistance": "T_e", "leakage": "T_e"}
@@ -95,7 +95,7 @@ def test_distortion_forty_sweeps(kind):
 
 
 #: measured on sweeps 200-209 with the default priors: the T_e interval widens by 4-69 % with a series
-#: resistance and 24-38 % with leakage + offset. Diagnosis (tests/distortion_information.py and the
+#: resistance and 24-38 % with leakage + offset. Diagnosis (tests/cases/distortion_information.py and the
 #: report of this change): T_e information sits in the transition region V_f..V_p (dropping it
 #: inflates the T_e sd 2-50x; dropping the ion branch 1.0-2.2x). Resistance: R makes the local
 #: log-slope 1/(T_e + I R), Cramer-Rao correlation of ln T_e with R -0.91; the data bound R only from
@@ -122,7 +122,7 @@ def test_leakage_widening_is_cramer_rao():
     about 0.91/sqrt(ESS) (asymptotic sd of a sample quantile, sqrt(q(1-q)/n)/f(x_q), for a normal
     posterior, both ends); a ratio of two such widths 4.1 %; we allow 3 of those, plus the sampled ratio
     must exceed 1 by more than 3 of those (negative control: no widening at all)."""
-    from distortion_information import cramer_rao
+    from cases.distortion_information import cramer_rao
     r = run_case("leakage", 200, clean=True)
     sampled = width(r["aware"]) / width(r["plain"])
     predicted = cramer_rao("leakage", 200)["ratio_free"]
@@ -140,7 +140,7 @@ def test_clean_sweep_calibrated_leakage_small_set():
 @pytest.mark.parametrize("kind", ["resistance", "leakage"])
 def test_clean_sweeps_ten_calibrated(kind):
     """The requirement, met with calibration: a measured circuit resistance (0 +- 0.5 % of T_e/I_es on a
-    clean sweep) or the leakage line of a plasma-off sweep (tests/distortion_cases.py). Measured: ratios
+    clean sweep) or the leakage line of a plasma-off sweep (tests/cases/distortions.py). Measured: ratios
     1.04-1.15 (resistance) and 1.00-1.10 (leakage)."""
     check_clean(kind, range(200, 210), calibrated=True)
 

@@ -12,7 +12,7 @@ Oracles:
   (directions ignored) is the negative control: it misses the true V_p in most sweeps, because the
   two knees blur into one that starts below the mean. Clean two-direction sweeps: the T_e interval
   widens by at most 25 % when the hysteresis terms are switched on.
-Sweeps: tests/hysteresis_cases.py (synthetic).
+Sweeps: tests/cases/hysteresis.py (synthetic).
 """
 import json
 
@@ -23,7 +23,7 @@ from scipy.stats import binom
 import bayesprobe as bp
 from bayesprobe.io import InputError, load_sweep, sweep_from_arrays, write_sweep_csv
 from bayesprobe.sweep import detect_branches
-from hysteresis_cases import covers, make_case, run_case
+from cases.hysteresis import covers, make_case, run_case
 
 
 def band(n, p=0.9, mass=0.99):

@@ -1,6 +1,6 @@
 """How much T_e information a circuit distortion takes from a clean sweep: the Cramer-Rao analysis.
 
-For the clean sweeps of tests/distortion_cases.py (Gaussian noise with the simulator's known sd)
+For the clean sweeps of tests/cases/distortions.py (Gaussian noise with the simulator's known sd)
 the Fisher information of the mean current is F = J^T diag(1/sd^2) J, J the derivatives of the
 model current with respect to (ln n_e[, ln n_i], ln T_e, V_p) and the distortion parameters at
 their undistorted values (R = 0 from above, G = I_0 = 0). The Cramer-Rao sd of ln T_e is
@@ -16,16 +16,20 @@ electron saturation V > V_p) is dropped from the plain fit, relative to all poin
 sd of the distortion parameters (normal, in units of T_e/I_es for R, I_is/span for G and I_is for
 I_0) at which the ratio falls to 1.25.
 
-Run ``python tests/distortion_information.py`` for the table over sweeps 200-209.
+Run ``python tests/cases/distortion_information.py`` for the table over sweeps 200-209.
 """
 from __future__ import annotations
+
+import sys
+from pathlib import Path
 
 import numpy as np
 
 import bayesprobe as bp
 from bayesprobe.physics.electrons import electron_saturation_current
 
-from distortion_cases import SWITCH, make_case
+sys.path.insert(0, str(Path(__file__).resolve().parents[1]))   # run as a script: tests/ importable
+from cases.distortions import SWITCH, make_case  # noqa: E402
 
 DISTORTION_PARAMS = {"resistance": ("R_series",), "leakage": ("G_leak", "I_offset")}
 
