@@ -378,7 +378,7 @@ def _say(args, text):
 def cmd_fit(args) -> int:
     from . import fitting
     from .inference.sampler import SamplerSettings
-    from .io import load_sweep, staged_output_dir
+    from .io import load_sweep
 
     sweep = load_sweep(args.sweep, voltage_column=args.voltage_column, current_column=args.current_column,
                        sign=args.sign)
@@ -404,7 +404,7 @@ def cmd_fit(args) -> int:
                              distortions=distortions)
     except ValueError as exc:          # bad prior values and the like: one line
         raise InputError(" ".join(str(exc).split())) from None
-    write_fit_outputs(result, args.out, figures=not args.no_figures)
+    result.save(args.out, figures=not args.no_figures)
     if not args.quiet:
         print(result.table())
         if result.comparison:
@@ -412,6 +412,7 @@ def cmd_fit(args) -> int:
         if result.distortions and result.distortions.get("note"):
             print(result.distortions["note"])
         print(f"results written to {args.out}")
+    _print_warnings(args, result.warnings())
     if not result.converged:
         print("warning: the sampler did not converge within the step budget "
               f"({'; '.join(result.diagnostics['unmet'])}); results are written with converged: false",
@@ -420,29 +421,18 @@ def cmd_fit(args) -> int:
     return EXIT_OK
 
 
-def write_fit_outputs(result, out_dir: Path, *, figures: bool = True) -> None:
-    """summary.json, parameters.csv, posterior.nc and figures, all-or-nothing into ``out_dir``."""
-    from .io import staged_output_dir
-    with staged_output_dir(out_dir) as tmp:
-        result.to_json(tmp / "summary.json")
-        (tmp / "parameters.csv").write_text(_parameters_csv(result))
-        result.to_netcdf(tmp / "posterior.nc")
-        if figures:
-            import matplotlib
-            matplotlib.use("Agg")
-            from .plots import save_figures
-            save_figures(result, tmp)
+#: warnings cmd_fit prints otherwise (reader notes before the fit, the distortion note with the table,
+#: non-convergence with the exit status)
+_PRINTED_ELSEWHERE = ("input-note", "not-converged", "distortion-selection")
 
 
-def _parameters_csv(result) -> str:
-    level = result.credible_level
-    lines = [f"parameter,unit,mean,sd,median,ci_low,ci_high,credible_level,classical"]
-    for name, e in result.parameter_summary().items():
-        c = result.classical.get(name, "") if isinstance(result.classical, dict) else ""
-        vals = [e[k] for k in ("mean", "sd", "median", "ci_low", "ci_high")]
-        lines.append(",".join([name, e["unit"]] + ["" if v is None else repr(float(v)) for v in vals]
-                              + [repr(level), "" if c in ("", None) else repr(float(c))]))
-    return "\n".join(lines) + "\n"
+def _print_warnings(args, warnings) -> None:
+    """One line on stderr per scientific warning (bayesprobe.checks); notes only without --quiet."""
+    from .checks import format_warning
+    for w in warnings:
+        if w["code"] in _PRINTED_ELSEWHERE or (w["level"] == "note" and args.quiet):
+            continue
+        print(format_warning(w), file=sys.stderr)
 
 
 def cmd_simulate(args) -> int:

@@ -23,7 +23,6 @@ import pytest  # noqa: E402
 
 import bayesprobe as bp  # noqa: E402
 from bayesprobe import report  # noqa: E402
-from bayesprobe.cli import write_fit_outputs  # noqa: E402
 from bayesprobe.errors import InputError  # noqa: E402
 from bayesprobe.fitting import make_config  # noqa: E402
 
@@ -55,7 +54,7 @@ def collection(tmp_path_factory):
                           seed=10 + k, sweep_id=sid)
         result = bp.fit(sim.sweep, config=config, model="auto" if electrons != "maxwellian" else "maxwellian",
                         seed=3, sampler=QUICK, progress=False)
-        write_fit_outputs(result, root / sid)
+        result.save(root / sid)
         for name, e in result.parameter_summary().items():
             if name in ("T_e", "T_e_cold", "T_e_hot", "hot_fraction", "n_e", "n_i", "V_f", "V_p"):
                 t = sim.truth.get(name)
@@ -344,7 +343,7 @@ def test_importance_sampling_fit_reports_its_own_diagnostics(tmp_path):
     sim = bp.simulate({"n_e": 1e16, "T_e": 3.0, "V_p": 12.0}, config=config, n_points=300, noise_rel=0.01, seed=5,
                       sweep_id="fast")
     result = bp.fit(sim.sweep, config=config, seed=3, progress=False, engine="fast")
-    write_fit_outputs(result, tmp_path / "fast")
+    result.save(tmp_path / "fast")
     d = json.loads((tmp_path / "fast" / "summary.json").read_text())["diagnostics"]
     text = report.build_report(tmp_path / "fast").read_text()
     diag = text[text.index("<h3>Sampler diagnostics</h3>"):text.index("<h3>Priors and settings")]
