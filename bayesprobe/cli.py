@@ -217,24 +217,7 @@ def _circuit_priors(args, sweep):
     return priors, needed
 
 
-def build_parser() -> argparse.ArgumentParser:
-    from ._version import __version__
-    p = _Parser(prog="bayesprobe", description="Bayesian analysis of electrostatic (Langmuir) probe I-V sweeps.")
-    p.add_argument("--version", action="version", version=f"bayesprobe {__version__}")
-    sub = p.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
-
-    d = sub.add_parser("demo", help="fit the bundled synthetic demo scenario end to end")
-    d.add_argument("--out", type=Path, default=Path("bayesprobe-demo"), help="output folder (default ./bayesprobe-demo)")
-    d.add_argument("--seed", type=_nonneg_int, default=0)
-    d.add_argument("--quiet", action="store_true")
-
-    f = sub.add_parser("fit", help="one sweep file -> posterior, summary, figures")
-    f.add_argument("sweep", type=Path, help="sweep file: .csv/.tsv/.txt with a header row, .npy or .npz")
-    f.add_argument("--out", type=Path, required=True, help="output folder (nothing is half-written there)")
-    _add_physics_options(f)
-    _add_fit_options(f)
-    _add_circuit_options(f)
-
+def _add_batch_parser(sub):
     b = sub.add_parser(
         "batch", help="many sweeps (files, folders, multi-sweep files) -> one results table; resumable",
         formatter_class=argparse.RawDescriptionHelpFormatter,
@@ -270,13 +253,8 @@ def build_parser() -> argparse.ArgumentParser:
     _add_fit_options(b)
     _add_circuit_options(b)
 
-    r = sub.add_parser("report", help="self-contained HTML report of a fit, demo or batch results folder")
-    r.add_argument("results", type=Path, metavar="RESULTS_DIR",
-                   help="a fit folder (summary.json), a folder of fit folders (bayesprobe demo output) "
-                        "or a batch folder (results.csv, sweeps/)")
-    r.add_argument("--out", type=Path, metavar="FILE",
-                   help="HTML file to write (default RESULTS_DIR/report.html); written atomically")
 
+def _add_simulate_parser(sub):
     s = sub.add_parser("simulate", help="synthetic sweep(s) with the truth written beside them")
     s.add_argument("--out", type=Path, required=True, help="output file: .csv or .npz (truth goes to NAME.truth.json)")
     _add_physics_options(s)
@@ -311,6 +289,36 @@ def build_parser() -> argparse.ArgumentParser:
                    help="displacement current C dV/dt at the sweep rate in A, positive on the rising branch "
                         "(stray capacitance; implies --both-directions; default 0)")
     s.add_argument("--seed", type=_nonneg_int, default=0)
+
+
+def build_parser() -> argparse.ArgumentParser:
+    from ._version import __version__
+    p = _Parser(prog="bayesprobe", description="Bayesian analysis of electrostatic (Langmuir) probe I-V sweeps.")
+    p.add_argument("--version", action="version", version=f"bayesprobe {__version__}")
+    sub = p.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
+
+    d = sub.add_parser("demo", help="fit the bundled synthetic demo scenario end to end")
+    d.add_argument("--out", type=Path, default=Path("bayesprobe-demo"), help="output folder (default ./bayesprobe-demo)")
+    d.add_argument("--seed", type=_nonneg_int, default=0)
+    d.add_argument("--quiet", action="store_true")
+
+    f = sub.add_parser("fit", help="one sweep file -> posterior, summary, figures")
+    f.add_argument("sweep", type=Path, help="sweep file: .csv/.tsv/.txt with a header row, .npy or .npz")
+    f.add_argument("--out", type=Path, required=True, help="output folder (nothing is half-written there)")
+    _add_physics_options(f)
+    _add_fit_options(f)
+    _add_circuit_options(f)
+
+    _add_batch_parser(sub)
+
+    r = sub.add_parser("report", help="self-contained HTML report of a fit, demo or batch results folder")
+    r.add_argument("results", type=Path, metavar="RESULTS_DIR",
+                   help="a fit folder (summary.json), a folder of fit folders (bayesprobe demo output) "
+                        "or a batch folder (results.csv, sweeps/)")
+    r.add_argument("--out", type=Path, metavar="FILE",
+                   help="HTML file to write (default RESULTS_DIR/report.html); written atomically")
+
+    _add_simulate_parser(sub)
     return p
 
 
