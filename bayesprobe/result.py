@@ -9,10 +9,9 @@ import numpy as np
 
 from .quantities import QUANTITIES, describe, main_names, unit_of
 from .model import ModelConfig
+from .schema import SUMMARY_SCHEMA
 
 __all__ = ["FitResult", "summarise_draws", "SUMMARY_SCHEMA", "MAIN_PARAMETERS", "FIT_FILES"]
-
-from .schema import SUMMARY_SCHEMA  # noqa: E402  (one definition of the schema name)
 
 #: the files :meth:`FitResult.save` writes (figures besides: fit, corner, trace, eedf .png)
 FIT_FILES = ("summary.json", "parameters.csv", "posterior.nc")
