@@ -217,24 +217,7 @@ def _circuit_priors(args, sweep):
     return priors, needed
 
 
-def build_parser() -> argparse.ArgumentParser:
-    from ._version import __version__
-    p = _Parser(prog="bayesprobe", description="Bayesian analysis of electrostatic (Langmuir) probe I-V sweeps.")
-    p.add_argument("--version", action="version", version=f"bayesprobe {__version__}")
-    sub = p.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
-
-    d = sub.add_parser("demo", help="fit the bundled synthetic demo scenario end to end")
-    d.add_argument("--out", type=Path, default=Path("bayesprobe-demo"), help="output folder (default ./bayesprobe-demo)")
-    d.add_argument("--seed", type=_nonneg_int, default=0)
-    d.add_argument("--quiet", action="store_true")
-
-    f = sub.add_parser("fit", help="one sweep file -> posterior, summary, figures")
-    f.add_argument("sweep", type=Path, help="sweep file: .csv/.tsv/.txt with a header row, .npy or .npz")
-    f.add_argument("--out", type=Path, required=True, help="output folder (nothing is half-written there)")
-    _add_physics_options(f)
-    _add_fit_options(f)
-    _add_circuit_options(f)
-
+def _add_batch_parser(sub):
     b = sub.add_parser(
         "batch", help="many sweeps (files, folders, multi-sweep files) -> one results table; resumable",
         formatter_class=argparse.RawDescriptionHelpFormatter,
@@ -270,13 +253,8 @@ def build_parser() -> argparse.ArgumentParser:
     _add_fit_options(b)
     _add_circuit_options(b)
 
-    r = sub.add_parser("report", help="self-contained HTML report of a fit, demo or batch results folder")
-    r.add_argument("results", type=Path, metavar="RESULTS_DIR",
-                   help="a fit folder (summary.json), a folder of fit folders (bayesprobe demo output) "
-                        "or a batch folder (results.csv, sweeps/)")
-    r.add_argument("--out", type=Path, metavar="FILE",
-                   help="HTML file to write (default RESULTS_DIR/report.html); written atomically")
 
+def _add_simulate_parser(sub):
     s = sub.add_parser("simulate", help="synthetic sweep(s) with the truth written beside them")
     s.add_argument("--out", type=Path, required=True, help="output file: .csv or .npz (truth goes to NAME.truth.json)")
     _add_physics_options(s)
@@ -311,6 +289,36 @@ def build_parser() -> argparse.ArgumentParser:
                    help="displacement current C dV/dt at the sweep rate in A, positive on the rising branch "
                         "(stray capacitance; implies --both-directions; default 0)")
     s.add_argument("--seed", type=_nonneg_int, default=0)
+
+
+def build_parser() -> argparse.ArgumentParser:
+    from ._version import __version__
+    p = _Parser(prog="bayesprobe", description="Bayesian analysis of electrostatic (Langmuir) probe I-V sweeps.")
+    p.add_argument("--version", action="version", version=f"bayesprobe {__version__}")
+    sub = p.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
+
+    d = sub.add_parser("demo", help="fit the bundled synthetic demo scenario end to end")
+    d.add_argument("--out", type=Path, default=Path("bayesprobe-demo"), help="output folder (default ./bayesprobe-demo)")
+    d.add_argument("--seed", type=_nonneg_int, default=0)
+    d.add_argument("--quiet", action="store_true")
+
+    f = sub.add_parser("fit", help="one sweep file -> posterior, summary, figures")
+    f.add_argument("sweep", type=Path, help="sweep file: .csv/.tsv/.txt with a header row, .npy or .npz")
+    f.add_argument("--out", type=Path, required=True, help="output folder (nothing is half-written there)")
+    _add_physics_options(f)
+    _add_fit_options(f)
+    _add_circuit_options(f)
+
+    _add_batch_parser(sub)
+
+    r = sub.add_parser("report", help="self-contained HTML report of a fit, demo or batch results folder")
+    r.add_argument("results", type=Path, metavar="RESULTS_DIR",
+                   help="a fit folder (summary.json), a folder of fit folders (bayesprobe demo output) "
+                        "or a batch folder (results.csv, sweeps/)")
+    r.add_argument("--out", type=Path, metavar="FILE",
+                   help="HTML file to write (default RESULTS_DIR/report.html); written atomically")
+
+    _add_simulate_parser(sub)
     return p
 
 
@@ -378,7 +386,7 @@ def _say(args, text):
 def cmd_fit(args) -> int:
     from . import fitting
     from .inference.sampler import SamplerSettings
-    from .io import load_sweep, staged_output_dir
+    from .io import load_sweep
 
     sweep = load_sweep(args.sweep, voltage_column=args.voltage_column, current_column=args.current_column,
                        sign=args.sign)
@@ -404,7 +412,7 @@ def cmd_fit(args) -> int:
                              distortions=distortions)
     except ValueError as exc:          # bad prior values and the like: one line
         raise InputError(" ".join(str(exc).split())) from None
-    write_fit_outputs(result, args.out, figures=not args.no_figures)
+    result.save(args.out, figures=not args.no_figures)
     if not args.quiet:
         print(result.table())
         if result.comparison:
@@ -412,6 +420,7 @@ def cmd_fit(args) -> int:
         if result.distortions and result.distortions.get("note"):
             print(result.distortions["note"])
         print(f"results written to {args.out}")
+    _print_warnings(args, result.warnings())
     if not result.converged:
         print("warning: the sampler did not converge within the step budget "
               f"({'; '.join(result.diagnostics['unmet'])}); results are written with converged: false",
@@ -420,29 +429,18 @@ def cmd_fit(args) -> int:
     return EXIT_OK
 
 
-def write_fit_outputs(result, out_dir: Path, *, figures: bool = True) -> None:
-    """summary.json, parameters.csv, posterior.nc and figures, all-or-nothing into ``out_dir``."""
-    from .io import staged_output_dir
-    with staged_output_dir(out_dir) as tmp:
-        result.to_json(tmp / "summary.json")
-        (tmp / "parameters.csv").write_text(_parameters_csv(result))
-        result.to_netcdf(tmp / "posterior.nc")
-        if figures:
-            import matplotlib
-            matplotlib.use("Agg")
-            from .plots import save_figures
-            save_figures(result, tmp)
+#: warnings cmd_fit prints otherwise (reader notes before the fit, the distortion note with the table,
+#: non-convergence with the exit status)
+_PRINTED_ELSEWHERE = ("input-note", "not-converged", "distortion-selection")
 
 
-def _parameters_csv(result) -> str:
-    level = result.credible_level
-    lines = [f"parameter,unit,mean,sd,median,ci_low,ci_high,credible_level,classical"]
-    for name, e in result.parameter_summary().items():
-        c = result.classical.get(name, "") if isinstance(result.classical, dict) else ""
-        vals = [e[k] for k in ("mean", "sd", "median", "ci_low", "ci_high")]
-        lines.append(",".join([name, e["unit"]] + ["" if v is None else repr(float(v)) for v in vals]
-                              + [repr(level), "" if c in ("", None) else repr(float(c))]))
-    return "\n".join(lines) + "\n"
+def _print_warnings(args, warnings) -> None:
+    """One line on stderr per scientific warning (bayesprobe.checks); notes only without --quiet."""
+    from .checks import format_warning
+    for w in warnings:
+        if w["code"] in _PRINTED_ELSEWHERE or (w["level"] == "note" and args.quiet):
+            continue
+        print(format_warning(w), file=sys.stderr)
 
 
 def cmd_simulate(args) -> int:

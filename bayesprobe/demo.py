@@ -25,7 +25,6 @@ def _limit_threads():
 
 def _fit_entry(folder: str, entry: dict, config_dict: dict, out: str, seed: int) -> dict:
     """Fit one demo sweep with automatic model choice, write its results, return table rows."""
-    from .cli import write_fit_outputs
     from .fitting import fit
     from .io import load_sweep
     from .model import ModelConfig
@@ -36,7 +35,7 @@ def _fit_entry(folder: str, entry: dict, config_dict: dict, out: str, seed: int)
     truth = json.loads((folder / f"{entry['sweep_id']}.truth.json").read_text())["parameters"]
     t = time.perf_counter()
     result = fit(sweep, config=config, model="auto", seed=seed, progress=False)
-    write_fit_outputs(result, Path(out) / entry["sweep_id"])
+    result.save(Path(out) / entry["sweep_id"])
     summary = result.parameter_summary()
     rows = []
     for name in ("T_e", "T_e_cold", "T_e_hot", "hot_fraction", "n_e", "n_i", "V_f", "V_p"):

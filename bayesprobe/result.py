@@ -9,10 +9,12 @@ import numpy as np
 
 from .quantities import QUANTITIES, describe, main_names, unit_of
 from .model import ModelConfig
+from .schema import SUMMARY_SCHEMA
 
-__all__ = ["FitResult", "summarise_draws", "SUMMARY_SCHEMA", "MAIN_PARAMETERS"]
+__all__ = ["FitResult", "summarise_draws", "SUMMARY_SCHEMA", "MAIN_PARAMETERS", "FIT_FILES"]
 
-SUMMARY_SCHEMA = "bayesprobe.summary/1"
+#: the files :meth:`FitResult.save` writes (figures besides: fit, corner, trace, eedf .png)
+FIT_FILES = ("summary.json", "parameters.csv", "posterior.nc")
 #: the parameters every summary reports first (registry order, bayesprobe.quantities)
 MAIN_PARAMETERS = main_names()
 
@@ -87,6 +89,15 @@ class FitResult:
     distortions: dict | None = None
     branches: tuple | None = None
     idata_builder: object = field(default=None, repr=False, compare=False)
+    versions: dict | None = field(default=None, repr=False)    # set by load(): the versions that wrote it
+
+    def __getstate__(self):
+        # the lazy InferenceData builder is a closure over the fit: build it so the result pickles
+        state = dict(self.__dict__)
+        if state.get("idata_builder") is not None:
+            state["_idata"] = self.idata
+            state["idata_builder"] = None
+        return state
 
     @property
     def idata(self):
@@ -152,13 +163,21 @@ class FitResult:
             "sweep": {k: v for k, v in self.sweep_info.items() if k != "source"},
             "seed": self.seed,
             "sampler_settings": self.settings,
-            "versions": _versions(__version__),
+            "versions": self.versions if self.versions is not None else _versions(__version__),
         }
         if self.comparison is not None:
             s["comparison"] = self.comparison
         if self.distortions is not None:
             s["distortions"] = self.distortions
-        return _clean(s)
+        s = _clean(s)
+        from .checks import summary_warnings
+        s["warnings"] = summary_warnings(s)
+        return s
+
+    def warnings(self) -> list[dict]:
+        """Scientific warnings about this fit (code, level, one-line message, hint; see
+        :mod:`bayesprobe.checks`); the same list is in ``summary.json`` under ``warnings``."""
+        return self.summary()["warnings"]
 
     def to_json(self, path=None) -> str:
         text = json.dumps(self.summary(), indent=2, allow_nan=False)
@@ -169,11 +188,48 @@ class FitResult:
 
     def to_netcdf(self, path):
         """Write the full InferenceData (atomically)."""
+        from .io import atomic_path
         path = Path(path)
-        tmp = path.with_name(f".{path.name}.tmp")
-        self.idata.to_netcdf(str(tmp))
-        tmp.replace(path)
+        with atomic_path(path) as tmp:
+            self.idata.to_netcdf(str(tmp))
         return path
+
+    def parameters_csv_rows(self):
+        """(header, rows) of ``parameters.csv``: one row per quantity with its summary."""
+        header = ("parameter", "unit", "mean", "sd", "median", "ci_low", "ci_high", "credible_level", "classical")
+        rows = []
+        for name, e in self.parameter_summary().items():
+            c = self.classical.get(name) if isinstance(self.classical, dict) else None
+            rows.append([name, e["unit"]] + [None if e[k] is None else float(e[k])
+                                             for k in ("mean", "sd", "median", "ci_low", "ci_high")]
+                        + [float(self.credible_level), None if c in ("", None) else float(c)])
+        return header, rows
+
+    def save(self, folder, *, figures: bool = True):
+        """Write the fit's folder: summary.json, parameters.csv, posterior.nc and (``figures``)
+        fit.png, corner.png, trace.png, eedf.png. All or nothing: the files are staged beside
+        ``folder`` and moved in only when every one is written. Returns the folder's path."""
+        from .io import staged_output_dir, write_csv
+        folder = Path(folder)
+        with staged_output_dir(folder) as tmp:
+            self.to_json(tmp / "summary.json")
+            write_csv(tmp / "parameters.csv", *self.parameters_csv_rows())
+            self.to_netcdf(tmp / "posterior.nc")
+            if figures:
+                from .plots import save_figures
+                save_figures(self, tmp)
+        return folder
+
+    @classmethod
+    def load(cls, folder) -> "FitResult":
+        """Read a fit folder written by :meth:`save` (summary.json and posterior.nc) back.
+
+        The result gives the same :meth:`summary`, :meth:`table`, :meth:`warnings` and figures
+        as the one that was saved; the alternatives of a model comparison are not stored (their
+        comparison numbers are, in ``comparison``). Raises :class:`~bayesprobe.errors.InputError`
+        if a file is missing or not a bayesprobe result.
+        """
+        return _load_fit_folder(cls, Path(folder))
 
     # ------------------------------------------------------------------ figures
     def plot_fit(self, **kwargs):
@@ -209,6 +265,54 @@ class FitResult:
             rows.append(f"{n:<14}{e['unit']:<7}{_fmt(e['median']):>12}{_fmt(e['ci_low']):>12}"
                         f"{_fmt(e['ci_high']):>12}{_fmt(c):>12}")
         return "\n".join(rows)
+
+
+def _read_posterior(path: Path):
+    """The InferenceData of posterior.nc, read into memory (the file is closed afterwards)."""
+    from .errors import InputError
+    from .inference.arviz_adapter import load_inference_data
+    if not path.is_file():
+        raise InputError(f"{str(path)!r} is missing; a fit folder holds summary.json and posterior.nc")
+    try:
+        idata = load_inference_data(path)
+        for group in idata.groups():
+            ds = getattr(idata, group)
+            ds.load()
+            ds.close()
+    except (OSError, ValueError, KeyError) as exc:
+        raise InputError(f"{str(path)!r} is not a readable posterior ({type(exc).__name__})") from None
+    return idata
+
+
+def _load_fit_folder(cls, folder: Path) -> "FitResult":
+    from .errors import InputError
+    from .schema import read_summary
+    s = read_summary(folder / "summary.json", strict=True)
+    idata = _read_posterior(folder / "posterior.nc")
+    post = idata.posterior
+    order = list(s["parameters"]) + [n for n in post.data_vars if n not in s["parameters"]]
+    draws = {n: np.asarray(post[n].values) for n in order if n in post.data_vars}
+    if not draws or "observed_data" not in idata.groups() or "constant_data" not in idata.groups():
+        raise InputError(f"{str(folder / 'posterior.nc')!r} lacks the posterior draws or the sweep")
+    const = idata.constant_data
+    branches = None
+    if "direction" in const.data_vars and "ramp" in const.data_vars:
+        branches = (np.asarray(const["direction"].values), np.asarray(const["ramp"].values))
+    lik = s.get("likelihood", {})
+    try:
+        config = ModelConfig.from_dict(s["model_settings"])
+    except (KeyError, TypeError, ValueError) as exc:
+        raise InputError(f"{str(folder / 'summary.json')!r}: model_settings unusable ({exc})") from None
+    return cls(model=s["model"], config=config, voltage=np.asarray(const["voltage"].values),
+               current=np.asarray(idata.observed_data["current"].values), draws=draws,
+               units={n: e["unit"] for n, e in s["parameters"].items()},
+               parameter_order=tuple(s["parameter_order"]), priors=s.get("priors", {}),
+               diagnostics=s.get("diagnostics", {}), classical=s.get("classical", {}),
+               credible_level=s["credible_level"], _idata=idata,
+               sweep_info={"source": s.get("input"), **s.get("sweep", {})},
+               map_estimate=s.get("map_estimate", {}), comparison=s.get("comparison"),
+               student_nu=lik.get("student_nu"), seed=s.get("seed"), settings=s.get("sampler_settings", {}),
+               distortions=s.get("distortions"), branches=branches, versions=s.get("versions"))
 
 
 def _fmt(v):

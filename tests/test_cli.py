@@ -172,3 +172,20 @@ def test_fast_engine_records_itself_and_agrees_with_mcmc(tmp_path, sweep_file):
     for name in ("T_e", "n_e", "n_i", "V_p", "V_f"):
         a, b = s["parameters"][name], m["parameters"][name]
         assert abs(a["median"] - b["median"]) < 0.28 * b["sd"], (name, a, b)
+
+
+def test_fit_prints_its_warnings_one_line_each(tmp_path):
+    """A sweep simulated with a 0.4 V branch shift, fitted with the hysteresis model: the shift is
+    reported as a caution on stderr (one line, with its code) and stored in summary.json."""
+    sweep = tmp_path / "hyst.csv"
+    code, _, err = run_cli("simulate", "--out", sweep, "--branch-shift", "0.4", "--points", 300, "--seed", 5)
+    assert code == 0, err
+    code, out, err = run_cli("fit", sweep, "--out", tmp_path / "res", "--engine", "fast", "--no-figures",
+                             "--distortions", "hysteresis", "--quiet")
+    assert code == 0, err
+    s = json.loads((tmp_path / "res" / "summary.json").read_text())
+    stored = [w for w in s["warnings"] if w["code"] == "hysteresis-shift"]
+    assert len(stored) == 1 and stored[0]["level"] == "caution"
+    lines = [ln for ln in err.splitlines() if "[hysteresis-shift]" in ln]
+    assert len(lines) == 1 and lines[0].startswith("caution [hysteresis-shift]: ") and stored[0]["message"] in lines[0]
+    assert out == ""                                 # --quiet: no table; notes are not printed either

@@ -23,7 +23,8 @@ import pytest  # noqa: E402
 
 import bayesprobe as bp  # noqa: E402
 from bayesprobe import report  # noqa: E402
-from bayesprobe.cli import write_fit_outputs  # noqa: E402
+from bayesprobe.report import formatting as fmt  # noqa: E402
+from bayesprobe.schema import RESULTS_FIXED  # noqa: E402
 from bayesprobe.errors import InputError  # noqa: E402
 from bayesprobe.fitting import make_config  # noqa: E402
 
@@ -55,7 +56,7 @@ def collection(tmp_path_factory):
                           seed=10 + k, sweep_id=sid)
         result = bp.fit(sim.sweep, config=config, model="auto" if electrons != "maxwellian" else "maxwellian",
                         seed=3, sampler=QUICK, progress=False)
-        write_fit_outputs(result, root / sid)
+        result.save(root / sid)
         for name, e in result.parameter_summary().items():
             if name in ("T_e", "T_e_cold", "T_e_hot", "hot_fraction", "n_e", "n_i", "V_f", "V_p"):
                 t = sim.truth.get(name)
@@ -209,7 +210,7 @@ def test_collection_report_structure(collection, collection_html):
     assert "default-src 'none'" in text                     # the page may load nothing
     # model comparison in words, rule, reasoning
     s2 = json.loads((collection / "r020mm" / "summary.json").read_text())
-    assert s2["comparison"]["reasoning"] and report._e(s2["comparison"]["reasoning"]) in text
+    assert s2["comparison"]["reasoning"] and fmt._e(s2["comparison"]["reasoning"]) in text
     assert "Decision:" in text
     # priors, versions, safety
     assert "log-uniform" in text
@@ -248,18 +249,18 @@ def test_shown_value_parser_rejects_a_mismatch():
 
 
 def test_number_formatting():
-    assert report._n(2.60229) == '<data value="2.60229" title="2.60229">2.602</data>'
-    assert report._n(4.000009e16) == ('<data value="4.000009e+16" title="4.000009e+16">'
+    assert fmt._n(2.60229) == '<data value="2.60229" title="2.60229">2.602</data>'
+    assert fmt._n(4.000009e16) == ('<data value="4.000009e+16" title="4.000009e+16">'
                                       '4.000&#8239;&times;&#8239;10<sup>16</sup></data>')
-    assert report._n(99999.7) .endswith("10<sup>5</sup></data>")
-    assert report._n(1485) == '<data value="1485">1485</data>'
-    assert report._n(0.9, shortest=True) == '<data value="0.9" title="0.9">0.9</data>'
-    assert "&ndash;" in report._n(None) and "&ndash;" in report._n(float("nan")) and "&ndash;" in report._n("x")
-    assert "&ndash;" in report._n(True)
-    assert report._sig_digits(14.0029, 13.9935, 14.0121) == 6
-    assert report._sig_digits(4e16, 3.99e16, 4.01e16) == 4
-    assert report._unit("m^-3") == "m<sup>&minus;3</sup>"
-    assert report._unit("<b>") == "&lt;b&gt;"
+    assert fmt._n(99999.7) .endswith("10<sup>5</sup></data>")
+    assert fmt._n(1485) == '<data value="1485">1485</data>'
+    assert fmt._n(0.9, shortest=True) == '<data value="0.9" title="0.9">0.9</data>'
+    assert "&ndash;" in fmt._n(None) and "&ndash;" in fmt._n(float("nan")) and "&ndash;" in fmt._n("x")
+    assert "&ndash;" in fmt._n(True)
+    assert fmt._sig_digits(14.0029, 13.9935, 14.0121) == 6
+    assert fmt._sig_digits(4e16, 3.99e16, 4.01e16) == 4
+    assert fmt._unit("m^-3") == "m<sup>&minus;3</sup>"
+    assert fmt._unit("<b>") == "&lt;b&gt;"
 
 
 def test_hostile_strings_are_escaped(collection, tmp_path):
@@ -299,13 +300,23 @@ def test_warnings_for_non_convergence_pareto_k_and_distortions(collection, tmp_p
                            "models": {"maxwellian": {"elpd_loo": 10.0, "pareto_k_max": 1.3,
                                                      "n_pareto_k_above_0.7": 4, "converged": False}}}
         s["sweep"]["notes"] = ["dropped 7 rows with a missing or non-finite voltage or current"]
-        s["distortions"] = [{"kind": "hysteresis", "message": "up and down sweeps differ by 0.4 V"}]
+        # the summary's distortions block as fits write it (distortion_choice.describe_distortions)
+        s["distortions"] = {"enabled": ["hysteresis"], "parameters": ["V_shift", "I_cap"],
+                            "descriptions": {"hysteresis": "up/down sweep hysteresis"},
+                            "note": "up and down sweeps differ by 0.4 V",
+                            "hysteresis": {"V_shift_V": {"median": 0.4, "lower": 0.35, "upper": 0.45},
+                                           "I_cap_A": {"median": 1e-8, "lower": -1e-8, "upper": 3e-8},
+                                           "credible_level": 0.9, "shift_excludes_zero": True,
+                                           "note": "up and down sweeps differ by 0.4 V"}}
     text = report.build_report(_copy_fit(collection / "r010mm", tmp_path / "bad", bad)).read_text()
     box = text[text.index('id="warnings"') - 40:text.index('id="summary"')]
     assert 'class="alerts grave"' in box
     assert "not converged" in box and "bulk ESS 321 &lt; 1000" in box
     assert "high Pareto k" in box and "(the selected one)" in box
-    assert "dropped 7 rows" in box and "hysteresis" not in box and "up and down sweeps differ" in box
+    assert "dropped 7 rows" in box and "hysteresis" not in box
+    assert "shifted by &Delta;V<sub>h</sub> = 0.4 V (interval 0.35 to 0.45 V; excludes zero)" in box
+    section = text[text.index("<h3>Distortions</h3>"):text.index("<h3>Model comparison</h3>")]
+    assert "up and down sweeps differ by 0.4 V" in section and '<data value="0.35"' in section
 
     def good(s):
         s["diagnostics"]["converged"] = True
@@ -344,7 +355,7 @@ def test_importance_sampling_fit_reports_its_own_diagnostics(tmp_path):
     sim = bp.simulate({"n_e": 1e16, "T_e": 3.0, "V_p": 12.0}, config=config, n_points=300, noise_rel=0.01, seed=5,
                       sweep_id="fast")
     result = bp.fit(sim.sweep, config=config, seed=3, progress=False, engine="fast")
-    write_fit_outputs(result, tmp_path / "fast")
+    result.save(tmp_path / "fast")
     d = json.loads((tmp_path / "fast" / "summary.json").read_text())["diagnostics"]
     text = report.build_report(tmp_path / "fast").read_text()
     diag = text[text.index("<h3>Sampler diagnostics</h3>"):text.index("<h3>Priors and settings")]
@@ -409,7 +420,7 @@ def test_batch_folder_from_records_and_table(collection, tmp_path):
     """A batch folder as documented (records with a nested summary, results.csv, profiles.png)."""
     out = tmp_path / "batch"
     (out / "sweeps").mkdir(parents=True)
-    header = list(report._BATCH_FIXED[:4]) + ["time"] + list(report._BATCH_FIXED[4:])
+    header = list(RESULTS_FIXED[:4]) + ["time"] + list(RESULTS_FIXED[4:])
     params = ["T_e", "n_e", "V_p"]
     header += [f"{p}_{s}" for p in params for s in ("median", "ci_low", "ci_high")]
     rows = []
@@ -576,3 +587,52 @@ def test_real_demo_report_renders_in_chromium(tmp_path):
     png = _screenshot(path, ARTIFACTS / "report-demo.png")
     _check_screenshot(png)
     print(f"screenshot: {png}")
+
+
+# ----------------------------------------------------------------------------- a real fit with distortions
+
+@pytest.fixture(scope="module")
+def distorted_folder(tmp_path_factory):
+    """A real fit folder whose summary has a distortions block: a sweep recorded with rising and
+    falling bias, the rising branch shifted by 0.4 V, 3 % heavy-tailed outliers; fitted with the
+    hysteresis and outlier models by the fast engine and saved by FitResult.save."""
+    config = make_config(probe=PROBE, ion="Ar", ion_collection="oml")
+    sim = bp.simulate({"n_e": 1e16, "T_e": 3.0, "V_p": 12.0, "V_shift": 0.4, "I_cap": 0.0},
+                      config=config.with_(hysteresis=True), n_points=300, noise_rel=0.01, seed=5,
+                      sweep_id="hyst", both_directions=True, outlier_fraction=0.03)
+    result = bp.fit(sim.sweep, config=config, seed=3, progress=False, engine="fast",
+                    distortions=("hysteresis", "outliers"))
+    return result.save(tmp_path_factory.mktemp("distorted") / "hyst")
+
+
+def test_report_shows_the_distortions_of_a_real_fit(distorted_folder):
+    """The distortions block of summary.json (a dict: note, hysteresis shift, outliers) reaches the page:
+    as warnings in the box and as its own block in the sweep's section, every number traced."""
+    s = json.loads((distorted_folder / "summary.json").read_text())
+    d = s["distortions"]
+    assert isinstance(d, dict) and d["outliers"]["n_flagged"] > 0 and d["hysteresis"]["shift_excludes_zero"]
+    text = report.build_report(distorted_folder).read_text()
+    box = text[text.index('id="warnings"'):text.index('id="summary"')]
+    assert f"{d['outliers']['n_flagged']} point(s) flagged as outliers" in box
+    assert "shifted by &Delta;V<sub>h</sub> = " in box and "excludes zero" in box
+    section = text[text.index("<h3>Distortions</h3>"):text.index("<h3>Model comparison</h3>")]
+    assert fmt._e(d["note"]) in section
+    assert f'<data value="{d["hysteresis"]["V_shift_V"]["median"]!r}"' in section
+    assert f'<data value="{d["outliers"]["n_flagged"]}">' in section
+    for desc in d["descriptions"].values():
+        assert fmt._e(desc) in section
+    known = _numbers_in(s, set())
+    _csv_numbers(distorted_folder / "parameters.csv", known)
+    for value, shown in _Doc(text).data:
+        assert float(value) in known, (value, shown)
+
+
+def test_report_takes_descriptions_from_the_file_escaped_and_labels_from_the_registry(distorted_folder, tmp_path):
+    def edit(s):
+        s["quantities"]["T_e"]["description"] = f"temperature {HOSTILE}"
+        s["quantities"]["T_e"]["label_html"] = "<b onclick=alert(4)>T</b>"
+    text = report.build_report(_copy_fit(distorted_folder, tmp_path / "labels", edit)).read_text()
+    params = text[text.index('<table class="parameters">'):]
+    params = params[:params.index("</table>")]
+    assert "temperature &lt;script&gt;" in params and HOSTILE not in text
+    assert "onclick" not in text and "T<sub>e</sub>" in params            # markup only from the registry
