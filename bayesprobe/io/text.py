@@ -228,6 +228,11 @@ class DelimitedTable:
         except ValueError:
             raise KeyError(f"no column named {column!r}") from None
 
+    def lines(self, rows: slice | None = None) -> Iterator[tuple[int, str]]:
+        """``(line number, text)`` of every data row as read (white space around it removed, not split)."""
+        sl = rows if rows is not None else slice(None)
+        return zip(self.line_numbers[sl], self._rows[sl])
+
     def rows(self, rows: slice | None = None) -> Iterator[tuple[int, list | None]]:
         """``(line number, fields)`` of every data row as split (no count check); ``fields`` is
         None for a line with unbalanced quotes.  For callers with their own per-row policy."""
