@@ -288,3 +288,20 @@ def test_public_column_helpers():
     with pytest.raises(InputError) as exc:
         bio.identify_columns(["a", "b"], None, None, "'t'")
     one_line_error(exc, "no column is recognisable as the probe voltage")
+
+
+def test_tab_separated_rows_keep_their_empty_end_fields():
+    """In tab-separated text (IANA text/tab-separated-values: one tab between fields) a row ending in a
+    tab ends with an empty field; white space other than tabs is still trimmed.  Negative control: a row
+    short of a field with no tab for it stays an error."""
+    table = read_delimited_table(b"id\tx\ty \n a\t1\t\t\nb\t\t2 \n\tc\t3\n")
+    assert table.header == ["id", "x", "y"]
+    assert table.strings([0, 1, 2]) == [["a", "b", ""], ["1", "", "c"], ["", "2", "3"]]
+    x, y = table.numbers([1, 2], rows=slice(0, 2))
+    assert x[0] == 1.0 and np.isnan(x[1]) and np.isnan(y[0]) and y[1] == 2.0
+    with pytest.raises(InputError) as exc:
+        read_delimited_table(b"id\tx\ty\na\t1\n").strings([0])
+    one_line_error(exc, "line 2 has 2 fields but the header has 3")
+    comma = read_delimited_table(b"v,i\t\n1,2\t\n\t3,4\n")      # tabs at the ends of a comma table are trimmed
+    assert comma.delimiter == "," and comma.header == ["v", "i"]
+    np.testing.assert_array_equal(comma.numbers([0, 1])[1], [2.0, 4.0])

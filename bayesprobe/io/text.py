@@ -29,6 +29,9 @@ _TEXT_BYTES = bytes(b for b in range(256) if b not in _BINARY_BYTES)
 _DECIMAL_COMMA = re.compile(r"^[+-]?\d*,\d+(?:[eE][+-]?\d+)?$|^[+-]?\d+,\d*(?:[eE][+-]?\d+)?$")
 _MISSING = {"", "na", "n/a", "nan", "null", "none", "-", "--"}
 
+#: the white space stripped from both ends of a line before the separator is known (all but the tab)
+_SPACE_BUT_TAB = "".join(chr(c) for c in range(0x3001) if chr(c).isspace() and c != 9)
+
 #: widest table parsed in one call to numpy.loadtxt (wider ones go line by line)
 _FAST_MAX_COLUMNS = 16
 
@@ -299,12 +302,17 @@ class DelimitedTable:
 
 
 def _data_lines(text: str, where: str, max_rows: int, subject: str):
-    """The non-blank, non-comment lines (stripped) and their 1-based line numbers; header included."""
+    """The non-blank, non-comment lines and their 1-based line numbers; header included.
+
+    White space around each line is removed except tabs, which may end empty fields of a
+    tab-separated row (the caller strips them when the separator is not a tab).
+    """
     lines = []
     numbers = []
     for n, raw in enumerate(text.splitlines(), start=1):
-        s = raw.strip()
-        if not s or s.startswith("#"):
+        s = raw.strip(_SPACE_BUT_TAB)
+        t = s.strip("\t") if s[:1] == "\t" or s[-1:] == "\t" else s
+        if not t or t.startswith("#"):
             continue
         lines.append(s)
         numbers.append(n)
@@ -384,8 +392,12 @@ def read_delimited_table(
     text = _decode_text(data, where, subject)
     del data
     lines, numbers = _data_lines(text, where, max_rows, subject)
+    had_tabs = "\t" in text
     del text
-    delim = _choose_delimiter(lines[0], lines[1] if len(lines) > 1 else None)
+    lines[0] = lines[0].strip()
+    delim = _choose_delimiter(lines[0], lines[1].strip() if len(lines) > 1 else None)
+    if delim != "\t" and had_tabs:
+        lines = [ln.strip() for ln in lines]
     quoted = delim is not None and any('"' in ln for ln in lines)
     header = _header_fields(lines[0], delim, numbers[0], where)
     return DelimitedTable(header, delim, quoted, numbers[0], lines[0], lines[1:], numbers[1:], where)
