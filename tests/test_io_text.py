@@ -184,7 +184,7 @@ def test_load_sweep_reads_through_the_table(tmp_path):
 
 
 def test_old_import_paths_still_work():
-    """The batch reader imports these private helpers from bayesprobe.io; they must stay there."""
+    """Existing code imports these private helpers from bayesprobe.io; they must stay there."""
     from bayesprobe.io import (_MISSING, _choose_delimiter, _decode_text, _identify_columns, _load_text,  # noqa: F401
                                _norm_name, _parse_numbers, _split_fields, atomic_path, write_csv)
     assert _choose_delimiter("a;b", "1;2") == ";"

@@ -4,9 +4,10 @@
 Windows-1252), drops blank and ``#`` comment lines, chooses the separator (tab, semicolon, comma or
 runs of white space), splits the header, and returns a :class:`DelimitedTable` whose columns are
 parsed on request: as numbers (missing-value markers become NaN, decimal commas are accepted when
-the separator is not a comma) or as text.  Every problem is a one-line
-:class:`~bayesprobe.errors.InputError` naming the line (and column) and the fix.  This module knows
-nothing about probes: which column means what is decided by the caller.
+the separator is not a comma) or as text.  In tab-separated text an empty field at the start or end
+of a row is kept (a missing value, as an empty field between two commas is).  Every problem is a
+one-line :class:`~bayesprobe.errors.InputError` naming the line (and column) and the fix.  This
+module knows nothing about probes: which column means what is decided by the caller.
 """
 from __future__ import annotations
 
