@@ -157,6 +157,54 @@ def test_csv_problems_are_per_sweep(tmp_path):
         items[3].load()
 
 
+def test_multi_sweep_csv_reads_as_the_single_sweep_reader(tmp_path):
+    """Each sweep of a multi-sweep table has exactly the numbers load_sweep reads from the same rows
+    written alone (Python float repr reads back exactly); decimal commas with semicolons are read as
+    in single-sweep files; counting sweeps needs no numbers."""
+    from bayesprobe.batch.readers import count_sweeps, reading_options
+    from bayesprobe.io import load_sweep
+    sweeps = [("a", _sim(1, n=40)), ("b", _sim(2, n=45)), ("c", _sim(3, n=50))]
+    rows = ["# exported by hand", "sweep;bias;current [mA];time;position"]
+    for k, (sid, s) in enumerate(sweeps):
+        for j, (v, i) in enumerate(zip(s.voltage, s.current)):
+            if j == 10:
+                rows += ["", "# pause"]
+            rows.append(f"{sid};{float(v)!r};{float(i) * 1e3!r};{2.5 * k!r};{0.1 * j!r}".replace(".", ","))
+    (tmp_path / "m.csv").write_text("\n".join(rows) + "\n")
+    items = list(iter_sweeps([tmp_path / "m.csv"]))
+    assert [it.label for it in items] == ["a", "b", "c"] and [it.index for it in items] == [0, 1, 2]
+    assert [it.coords for it in items] == [{"time": 0.0}, {"time": 2.5}, {"time": 5.0}]   # position varies
+    assert count_sweeps([tmp_path / "m.csv"], reading_options()) == 3
+    for it, (sid, s) in zip(items, sweeps):
+        one = tmp_path / f"one-{sid}.csv"
+        one.write_text("bias;current [mA]\n" + "\n".join(
+            f"{float(v)!r};{float(i) * 1e3!r}".replace(".", ",") for v, i in zip(s.voltage, s.current)) + "\n")
+        got, ref = it.load(), load_sweep(one)
+        np.testing.assert_array_equal(got.voltage, ref.voltage)
+        np.testing.assert_array_equal(got.current, ref.current)
+        assert "decimal commas read as decimal points" in got.notes
+
+
+def test_ragged_rows_and_long_sweeps_spoil_their_own_sweep(tmp_path):
+    """A row with more or fewer fields than the header, or too many rows, fails its sweep only."""
+    a, b, c = _sim(1, n=40), _sim(2, n=40), _sim(3, n=60)
+    rows = ["sweep_id,voltage_V,current_A"]
+    for sid, s in (("A", a), ("B", b), ("C", c)):
+        rows += [f"{sid},{float(v)!r},{float(i)!r}" for v, i in zip(s.voltage, s.current)]
+    rows[5] += ",7"
+    rows[50] = "B,1.0"
+    (tmp_path / "m.csv").write_text("\n".join(rows) + "\n")
+    items = list(iter_sweeps([tmp_path / "m.csv"], max_points=50))
+    with pytest.raises(InputError, match=r"line 6 has 4 fields but the header has 3; make every row match"):
+        items[0].load()
+    with pytest.raises(InputError, match=r"line 51 has 2 fields but the header has 3"):
+        items[1].load()
+    with pytest.raises(InputError, match=r"sweep 'C' has more than 50 rows, the limit for one sweep"):
+        items[2].load()
+    ok = list(iter_sweeps([tmp_path / "m.csv"]))[2].load()
+    np.testing.assert_array_equal(ok.current, c.current)
+
+
 def test_hostile_ids_give_safe_distinct_file_names(tmp_path):
     ids = ["../x", "a/b", "a_b", "..", "", "/etc/passwd", "CON", "x" * 300, "tab\there", "ü", "x"]
     fids = [file_id_for(s) for s in ids]
@@ -339,6 +387,26 @@ def test_sweep_table_sets_per_sweep_probe(tmp_path):
     (tmp_path / "bad2.csv").write_text("sweep_id,radius\ns1,-3\n")
     with pytest.raises(InputError, match="must be positive"):
         load_sweep_table(tmp_path / "bad2.csv", CONFIG)
+
+
+def test_sweep_table_messages_name_file_lines(tmp_path):
+    """Messages count every line of the file (comments and blank lines too); tab-separated rows may end
+    in empty cells, which keep the batch-wide value."""
+    (tmp_path / "t.tsv").write_text("# per-sweep probes\nsweep_id\tradius\tion\ns1\t0.001\t\n\ns2\t\tHe\n")
+    table = load_sweep_table(tmp_path / "t.tsv", CONFIG)
+    assert table["s1"].probe.radius == 1e-3 and table["s1"].ion == CONFIG.ion and table["s2"].ion == "He"
+    (tmp_path / "bad.csv").write_text("# c\nsweep_id,radius\ns1,0.001\n\n# x\ns2,abc\n")
+    with pytest.raises(InputError, match=r"sweep table '.*bad.csv': line 6: radius 'abc' is not a number"):
+        load_sweep_table(tmp_path / "bad.csv", CONFIG)
+    (tmp_path / "bad2.csv").write_text("sweep_id,radius\ns1,0.001\n\ns2,0.002,9\n")
+    with pytest.raises(InputError, match=r"line 4 has 3 fields but the header has 2"):
+        load_sweep_table(tmp_path / "bad2.csv", CONFIG)
+    (tmp_path / "bad3.csv").write_text("sweep_id,radius\n\n,0.001\n")
+    with pytest.raises(InputError, match=r"line 3 has no sweep_id"):
+        load_sweep_table(tmp_path / "bad3.csv", CONFIG)
+    (tmp_path / "bad4.csv").write_bytes(b"sweep_id,ion\ns1,\xb5\n")
+    with pytest.raises(InputError, match=r"is not UTF-8 text"):
+        load_sweep_table(tmp_path / "bad4.csv", CONFIG)
 
 
 def _dies_on_s3(task):

@@ -184,7 +184,7 @@ def test_load_sweep_reads_through_the_table(tmp_path):
 
 
 def test_old_import_paths_still_work():
-    """The batch reader imports these private helpers from bayesprobe.io; they must stay there."""
+    """Existing code imports these private helpers from bayesprobe.io; they must stay there."""
     from bayesprobe.io import (_MISSING, _choose_delimiter, _decode_text, _identify_columns, _load_text,  # noqa: F401
                                _norm_name, _parse_numbers, _split_fields, atomic_path, write_csv)
     assert _choose_delimiter("a;b", "1;2") == ";"
@@ -203,3 +203,105 @@ def test_importing_io_alone_loads_no_heavy_library():
     )
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
     assert out.stdout.strip() == ""
+
+
+# --------------------------------------------------------------------------
+# write_csv: streamed into the temporary file of atomic_path
+# --------------------------------------------------------------------------
+
+
+def _reference_csv(header, rows, comments=()):
+    """The expected bytes, built by Python's csv module (RFC 4180 quoting) in memory."""
+    buf = io.StringIO()
+    for line in comments:
+        buf.write(("# " + line).rstrip() + "\n")
+    w = csv.writer(buf, lineterminator="\n")
+    w.writerow(header)
+    for row in rows:
+        w.writerow(["" if v is None else (repr(float(v)) if isinstance(v, (float, np.floating)) else v)
+                    for v in row])
+    return buf.getvalue().encode("utf-8")
+
+
+def test_write_csv_bytes_equal_the_csv_module(tmp_path):
+    """Quoting by RFC 4180 (Python csv), floats as repr (they read back exactly), None as an empty field."""
+    from bayesprobe.io import write_csv
+    rows = [["s,1", 1.5, None, 3], ['quote "q"', np.float32(0.1), "µA", -0.0], ["line\nbreak", float("nan"), "", 7]]
+    rows += [[f"r{k}", float(a), float(b), k] for k, (a, b) in enumerate(zip(A, B))]
+    comments = ["made by a test", "second  line  "]
+    out = write_csv(tmp_path / "t.csv", ["id", "x", "y", "k"], iter(rows), comments=comments)
+    assert out == tmp_path / "t.csv"
+    assert out.read_bytes() == _reference_csv(["id", "x", "y", "k"], rows, comments)
+    back = read_delimited_table(out)
+    np.testing.assert_array_equal(back.numbers(["x"], rows=slice(-A.size, None))[0], A)
+
+
+def test_write_csv_consumes_a_generator_row_by_row(tmp_path):
+    """Rows reach the temporary file while the generator is still producing them (negative control:
+    building the text in memory first would leave the temporary file empty until the end)."""
+    from bayesprobe.io import write_csv
+    sizes = []
+
+    def temp_size():
+        temps = [p for p in tmp_path.iterdir() if p.name.startswith(".t.csv.")]
+        return temps[0].stat().st_size if temps else None
+
+    def rows():
+        for k in range(20_000):
+            if k in (0, 19_999):
+                sizes.append(temp_size())
+            yield [k, float(k) / 7.0, "x" * 20]
+
+    write_csv(tmp_path / "t.csv", ["k", "v", "s"], rows())
+    assert sizes[0] is not None and sizes[0] < 1000          # the file is open before the first row
+    assert sizes[1] > 400_000                                # most rows are on disk before the last is made
+    assert len((tmp_path / "t.csv").read_text().splitlines()) == 20_001
+    assert [p.name for p in tmp_path.iterdir()] == ["t.csv"]
+
+
+def test_write_csv_failure_midway_leaves_no_file_and_no_temp(tmp_path):
+    from bayesprobe.io import write_csv
+
+    def rows():
+        for k in range(10_000):
+            if k == 9_000:
+                raise RuntimeError("source broke")
+            yield [k, float(k)]
+
+    with pytest.raises(RuntimeError, match="source broke"):
+        write_csv(tmp_path / "new.csv", ["k", "v"], rows())
+    assert list(tmp_path.iterdir()) == []
+    (tmp_path / "old.csv").write_text("k,v\n1,2\n")
+    with pytest.raises(RuntimeError, match="source broke"):
+        write_csv(tmp_path / "old.csv", ["k", "v"], rows())
+    assert [p.name for p in tmp_path.iterdir()] == ["old.csv"]
+    assert (tmp_path / "old.csv").read_text() == "k,v\n1,2\n"
+
+
+def test_public_column_helpers():
+    """identify_columns and norm_name are public; the old private names are the same objects."""
+    import bayesprobe.io as bio
+    assert bio.identify_columns is bio._identify_columns and bio.norm_name is bio._norm_name
+    assert bio.norm_name("  Sweep - No ") == "sweep_no"
+    iv, ic, fv, fi, notes = bio.identify_columns(["sweep", "current [mA]", "bias"], None, None, "'t'")
+    assert (iv, ic, fv, fi) == (2, 1, 1.0, 1e-3) and notes == ["current column 'current [mA]' converted from mA to A"]
+    with pytest.raises(InputError) as exc:
+        bio.identify_columns(["a", "b"], None, None, "'t'")
+    one_line_error(exc, "no column is recognisable as the probe voltage")
+
+
+def test_tab_separated_rows_keep_their_empty_end_fields():
+    """In tab-separated text (IANA text/tab-separated-values: one tab between fields) a row ending in a
+    tab ends with an empty field; white space other than tabs is still trimmed.  Negative control: a row
+    short of a field with no tab for it stays an error."""
+    table = read_delimited_table(b"id\tx\ty \n a\t1\t\t\nb\t\t2 \n\tc\t3\n")
+    assert table.header == ["id", "x", "y"]
+    assert table.strings([0, 1, 2]) == [["a", "b", ""], ["1", "", "c"], ["", "2", "3"]]
+    x, y = table.numbers([1, 2], rows=slice(0, 2))
+    assert x[0] == 1.0 and np.isnan(x[1]) and np.isnan(y[0]) and y[1] == 2.0
+    with pytest.raises(InputError) as exc:
+        read_delimited_table(b"id\tx\ty\na\t1\n").strings([0])
+    one_line_error(exc, "line 2 has 2 fields but the header has 3")
+    comma = read_delimited_table(b"v,i\t\n1,2\t\n\t3,4\n")      # tabs at the ends of a comma table are trimmed
+    assert comma.delimiter == "," and comma.header == ["v", "i"]
+    np.testing.assert_array_equal(comma.numbers([0, 1])[1], [2.0, 4.0])

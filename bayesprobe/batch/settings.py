@@ -1,12 +1,22 @@
-"""Per-sweep probe settings: a CSV table mapping sweep ids to changes of the batch-wide ModelConfig."""
+"""Per-sweep probe settings: a CSV table mapping sweep ids to changes of the batch-wide ModelConfig.
+
+The table is read by :func:`bayesprobe.io.read_delimited_table`, the project's one reader of
+delimited text.  Compared with the earlier reader of this module: messages name the real line of
+the file (``line N``, comment and blank lines counted) where they said ``row N``; the separator is
+chosen from the header and the first row as for sweep files (tab, semicolon, comma, or runs of white
+space); a trailing empty header name or field is ignored; a row with another number of fields than
+the header, a table of nothing but comments, and binary content get the text reader's one-line
+messages (``sweep table '...': line N has K fields but the header has M ...``, ``... holds no header
+or data ...``, ``... is not a text file (it contains binary data) ...``).
+"""
 from __future__ import annotations
 
-import csv
 import math
 import os
 from pathlib import Path
 
 from ..errors import InputError
+from ..io import read_delimited_table
 from ._messages import fail, one_line, show
 
 #: largest per-sweep settings table (bytes, rows)
@@ -23,59 +33,59 @@ def load_sweep_table(path, base_config) -> dict:
     ``length``, ``area`` (SI: m, m^2), ``ion``, ``ion_mass`` (u), ``ion_collection``
     and ``ion_temperature`` (eV). Empty cells keep the batch-wide value. Rows match
     a sweep by the id given in the input or by its file id.
+
+    The text is read by :func:`bayesprobe.io.read_delimited_table` (separator, quoting,
+    blank and ``#`` comment lines as for sweep files); messages name the line of the file
+    (``line N``, counting every line, comments and blank lines included).
     """
-    where = show(str(path), 120)
+    where = f"sweep table {show(str(path), 120)}"
     header, rows = _read_table(path, where)
     out = {}
-    for ln, row in enumerate(rows, start=2):
-        if len(row) != len(header):
-            raise fail(f"sweep table {where}: row {ln} has {len(row)} fields, the header {len(header)}")
-        rec = {h: v.strip() for h, v in zip(header, row)}
+    for ln, row in rows:
+        rec = dict(zip(header, row))
         sid = rec.pop("sweep_id")
         if not sid:
-            raise fail(f"sweep table {where}: row {ln} has no sweep_id")
+            raise fail(f"{where}: line {ln} has no sweep_id")
         if sid in out:
-            raise fail(f"sweep table {where}: sweep {show(sid, 60)} appears twice")
+            raise fail(f"{where}: sweep {show(sid, 60)} appears twice")
         try:
             changes = _row_changes(rec, base_config, ln, where)
             out[sid] = base_config.with_(**changes) if changes else base_config
         except InputError:
             raise
         except (ValueError, KeyError, TypeError) as exc:
-            raise fail(f"sweep table {where}: row {ln}: {one_line(exc, 200)}") from None
+            raise fail(f"{where}: line {ln}: {one_line(exc, 200)}") from None
     return out
 
 
 def _read_table(path, where: str):
-    """(normalised header, data rows) of the table, after the size, text and column checks."""
+    """(normalised header, [(line number, fields)]) of the table, after the size, text and column checks."""
     try:
         size = os.stat(path).st_size
     except OSError:
-        raise fail(f"sweep table {where} cannot be opened; check the path") from None
+        raise fail(f"{where} cannot be opened; check the path") from None
     if size > MAX_TABLE_BYTES:
-        raise fail(f"sweep table {where} is larger than {MAX_TABLE_BYTES >> 20} MiB")
+        raise fail(f"{where} is larger than {MAX_TABLE_BYTES >> 20} MiB")
     data = Path(path).read_bytes()
     try:
-        text = data.decode("utf-8-sig")
+        data.decode("utf-8")
     except UnicodeDecodeError:
-        raise fail(f"sweep table {where} is not UTF-8 text") from None
-    if "\x00" in text:
-        raise fail(f"sweep table {where} is not a text file")
-    lines = [ln for ln in text.splitlines() if ln.strip() and not ln.lstrip().startswith("#")]
-    if not lines:
-        raise fail(f"sweep table {where} is empty")
-    delim = "\t" if "\t" in lines[0] else (";" if ";" in lines[0] and "," not in lines[0] else ",")
-    rows = list(csv.reader(lines, delimiter=delim))
-    header = [h.strip().lower().replace(" ", "_").replace("-", "_") for h in rows[0]]
+        raise fail(f"{where} is not UTF-8 text") from None
+    # the row cap is checked below with this table's own message (every data row takes two bytes or more)
+    table = read_delimited_table(data, where=where, max_rows=MAX_TABLE_BYTES, max_bytes=MAX_TABLE_BYTES,
+                                 subject="sweep table")
+    del data
+    header = [h.strip().lower().replace(" ", "_").replace("-", "_") for h in table.header]
     if "sweep_id" not in header:
-        raise fail(f"sweep table {where} needs a 'sweep_id' column")
+        raise fail(f"{where} needs a 'sweep_id' column")
     unknown = [h for h in header if h not in TABLE_COLUMNS and h != "sweep_id"]
     if unknown:
-        raise fail(f"sweep table {where}: unknown column(s) {', '.join(show(u, 30) for u in unknown[:5])}; "
+        raise fail(f"{where}: unknown column(s) {', '.join(show(u, 30) for u in unknown[:5])}; "
                    f"use sweep_id and any of {', '.join(TABLE_COLUMNS)}")
-    if len(rows) - 1 > MAX_TABLE_ROWS:
-        raise fail(f"sweep table {where} has more than {MAX_TABLE_ROWS} rows")
-    return header, rows[1:]
+    if len(table) > MAX_TABLE_ROWS:
+        raise fail(f"{where} has more than {MAX_TABLE_ROWS} rows")
+    columns = table.strings(range(len(header)))
+    return header, list(zip(table.line_numbers, zip(*columns)))
 
 
 def _positive(rec: dict, name: str, ln: int, where: str):
@@ -86,9 +96,9 @@ def _positive(rec: dict, name: str, ln: int, where: str):
     try:
         x = float(v)
     except ValueError:
-        raise fail(f"sweep table {where}: row {ln}: {name} {show(v, 30)} is not a number (SI units)") from None
+        raise fail(f"{where}: line {ln}: {name} {show(v, 30)} is not a number (SI units)") from None
     if not (math.isfinite(x) and x > 0):
-        raise fail(f"sweep table {where}: row {ln}: {name} must be positive")
+        raise fail(f"{where}: line {ln}: {name} must be positive")
     return x
 
 

@@ -4,8 +4,8 @@ The package is split along its jobs:
 
 * :mod:`~bayesprobe.io.text` -- the one reader of delimited numeric text with a header
   (:func:`read_delimited_table`);
-* :mod:`~bayesprobe.io.columns` -- which column holds voltage and current, units in the names,
-  :func:`sanitise_id`;
+* :mod:`~bayesprobe.io.columns` -- which column holds voltage and current, units in the names
+  (:func:`identify_columns`, :func:`norm_name`), :func:`sanitise_id`;
 * :mod:`~bayesprobe.io.numpy_files` -- .npy/.npz sweeps, never unpickled;
 * :mod:`~bayesprobe.io.sweeps` -- :func:`load_sweep` and the cleaning :func:`sweep_from_arrays`;
 * :mod:`~bayesprobe.io.atomic` -- atomic file writes and staged output folders;
@@ -14,7 +14,8 @@ The package is split along its jobs:
 
 Everything read is treated as untrusted (never ``eval``, never unpickled, sizes capped) and every
 problem becomes a one-line :class:`~bayesprobe.errors.InputError` that names the fix.  The private
-helpers re-exported below are used by the batch reader and keep their old import path.
+helpers re-exported below keep their old import path for existing callers; new code uses the
+public names.
 """
 from __future__ import annotations
 
@@ -27,7 +28,7 @@ from .atomic import (_fsync_dir, _move_tree_into, _umask, atomic_path, atomic_wr
                      staged_output_dir)
 from .columns import (_CURRENT_NAMES, _ID_BAD, _UNIT_HELP, _UNITS, _VOLTAGE_NAMES, _WINDOWS_RESERVED,
                       _find_explicit, _identify_columns, _norm_name, _role_of, _split_unit, _unit_factor,
-                      sanitise_id)
+                      identify_columns, norm_name, sanitise_id)
 from .csvfile import write_csv, write_sweep_csv
 from .limits import (MAX_COLUMNS, MAX_FILE_BYTES, MAX_POINTS, MIN_POINTS, MIN_VOLTAGE_SPAN, NUMPY_SUFFIXES,
                      TEXT_SUFFIXES, _check_file, _read_bytes)
@@ -42,6 +43,8 @@ __all__ = [
     "sweep_from_arrays",
     "read_delimited_table",
     "DelimitedTable",
+    "identify_columns",
+    "norm_name",
     "sanitise_id",
     "atomic_write_text",
     "atomic_write_bytes",

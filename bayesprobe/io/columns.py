@@ -9,7 +9,7 @@ import numpy as np
 
 from ._messages import _fail, _show, _show_list
 
-__all__ = ["sanitise_id"]
+__all__ = ["sanitise_id", "identify_columns", "norm_name"]
 
 _ID_BAD = re.compile(r"[^A-Za-z0-9._-]")
 _WINDOWS_RESERVED = {"CON", "PRN", "AUX", "NUL"} | {f"COM{k}" for k in range(1, 10)} | {
@@ -62,7 +62,8 @@ _UNITS = {
 _UNIT_HELP = {"A": "A, mA, uA (or µA), nA or pA", "V": "V, mV or kV"}
 
 
-def _norm_name(text: str) -> str:
+def norm_name(text: str) -> str:
+    """A column name compared loosely: lower case, white space and dashes as one ``_``, no outer ``_``."""
     s = text.strip().lower()
     s = re.sub(r"[\s\-]+", "_", s)
     return s.strip("_")
@@ -72,22 +73,22 @@ def _split_unit(raw: str):
     """Split a header entry into (normalised base name, unit text or None, style)."""
     low = raw.strip().strip("\"'").strip().lower().replace("\u00b5", "u").replace("\u03bc", "u")
     if len(low) > 200:
-        return _norm_name(low), None, None
-    if _norm_name(low) in _VOLTAGE_NAMES or _norm_name(low) in _CURRENT_NAMES:
-        return _norm_name(low), None, None
+        return norm_name(low), None, None
+    if norm_name(low) in _VOLTAGE_NAMES or norm_name(low) in _CURRENT_NAMES:
+        return norm_name(low), None, None
     for close, open_ in (("]", "["), (")", "(")):
         if low.endswith(close):
             k = low.rfind(open_)
             if k > 0:
-                return _norm_name(low[:k]), low[k + 1: -1].strip().replace(" ", ""), "bracket"
+                return norm_name(low[:k]), low[k + 1: -1].strip().replace(" ", ""), "bracket"
     if "/" in low:
         base, _, unit = low.rpartition("/")
         if unit.strip() in _UNITS and base.strip():
-            return _norm_name(base), unit.strip(), "slash"
+            return norm_name(base), unit.strip(), "slash"
     idx = max(low.rfind(" "), low.rfind("_"), low.rfind("-"))
     if idx > 0 and low[idx + 1:] in _UNITS:
-        return _norm_name(low[:idx]), low[idx + 1:], "suffix"
-    return _norm_name(low), None, None
+        return norm_name(low[:idx]), low[idx + 1:], "suffix"
+    return norm_name(low), None, None
 
 
 def _role_of(base: str):
@@ -135,7 +136,7 @@ def _find_explicit(names: Sequence[str], wanted, role: str, where: str) -> int:
     for k, name in enumerate(names):
         if name.strip().strip("\"'").strip().lower() == target:
             return k
-    target_norm = _norm_name(target.replace("\u00b5", "u").replace("\u03bc", "u"))
+    target_norm = norm_name(target.replace("\u00b5", "u").replace("\u03bc", "u"))
     for k, name in enumerate(names):
         if _split_unit(name)[0] == target_norm:
             return k
@@ -147,8 +148,14 @@ def _find_explicit(names: Sequence[str], wanted, role: str, where: str) -> int:
     )
 
 
-def _identify_columns(names: Sequence[str], voltage_column, current_column, where: str, what="column"):
-    """Pick the voltage and current columns; return (iv, ic, fv, fi, notes)."""
+def identify_columns(names: Sequence[str], voltage_column, current_column, where: str, what="column"):
+    """Pick the voltage and current columns among ``names``; return ``(iv, ic, fv, fi, notes)``.
+
+    ``iv``/``ic`` are 0-based indices, ``fv``/``fi`` the factors to SI (V, A) read from the units in
+    the names, ``notes`` the conversions made.  ``voltage_column``/``current_column`` (a name or an
+    index, or None to recognise the usual names) choose explicitly; ``what`` names the things being
+    chosen in messages (``"column"``, ``"array"``, ``"field"``).  Raises a one-line InputError.
+    """
     parsed = [_split_unit(n) for n in names]
     chosen = {}
     for role, wanted in (("V", voltage_column), ("A", current_column)):
@@ -192,3 +199,8 @@ def _identify_columns(names: Sequence[str], voltage_column, current_column, wher
             si = "V" if role == "V" else "A"
             notes.append(f"{quantity} {what} {_show(names[k], 40)} converted from {shown} to {si}")
     return iv, ic, factors[0], factors[1], notes
+
+
+# the names used before these two helpers were public (kept for existing imports)
+_norm_name = norm_name
+_identify_columns = identify_columns

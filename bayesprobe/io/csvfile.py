@@ -3,14 +3,13 @@
 from __future__ import annotations
 
 import csv
-import io as _io
 from pathlib import Path
 from typing import Sequence
 
 import numpy as np
 
 from ..sweep import Sweep
-from .atomic import atomic_write_text
+from .atomic import atomic_path, atomic_write_text
 
 __all__ = ["write_csv", "write_sweep_csv"]
 
@@ -18,16 +17,23 @@ __all__ = ["write_csv", "write_sweep_csv"]
 def write_csv(path, header: Sequence[str], rows, *, comments: Sequence[str] = ()) -> Path:
     """Write a CSV table atomically: optional ``# `` comment lines, one header row, then ``rows``
     (sequences of values; None is written as an empty field, floats with ``repr`` so they read
-    back exactly)."""
-    buf = _io.StringIO()
-    for line in comments:
-        buf.write(("# " + str(line)).rstrip() + "\n")
-    w = csv.writer(buf, lineterminator="\n")
-    w.writerow(list(header))
-    for row in rows:
-        w.writerow(["" if v is None else (repr(float(v)) if isinstance(v, (float, np.floating)) else v)
-                    for v in row])
-    return atomic_write_text(path, buf.getvalue())
+    back exactly).
+
+    ``rows`` may be any iterable, a generator included: each row is written to the temporary file
+    of :func:`atomic_path` as it comes, so the table is never held in memory whole.  The file
+    appears at ``path`` only when every row is written (UTF-8, ``\\n`` line ends); if anything
+    fails on the way, ``path`` is left as it was and the temporary file is removed.
+    """
+    path = Path(path)
+    with atomic_path(path) as tmp, open(tmp, "w", encoding="utf-8", newline="") as fh:
+        for line in comments:
+            fh.write(("# " + str(line)).rstrip() + "\n")
+        w = csv.writer(fh, lineterminator="\n")
+        w.writerow(list(header))
+        for row in rows:
+            w.writerow(["" if v is None else (repr(float(v)) if isinstance(v, (float, np.floating)) else v)
+                        for v in row])
+    return path
 
 
 def write_sweep_csv(path, sweep_or_arrays, *, header_comment: str | None = None) -> Path:

@@ -4,9 +4,10 @@
 Windows-1252), drops blank and ``#`` comment lines, chooses the separator (tab, semicolon, comma or
 runs of white space), splits the header, and returns a :class:`DelimitedTable` whose columns are
 parsed on request: as numbers (missing-value markers become NaN, decimal commas are accepted when
-the separator is not a comma) or as text.  Every problem is a one-line
-:class:`~bayesprobe.errors.InputError` naming the line (and column) and the fix.  This module knows
-nothing about probes: which column means what is decided by the caller.
+the separator is not a comma) or as text.  In tab-separated text an empty field at the start or end
+of a row is kept (a missing value, as an empty field between two commas is).  Every problem is a
+one-line :class:`~bayesprobe.errors.InputError` naming the line (and column) and the fix.  This
+module knows nothing about probes: which column means what is decided by the caller.
 """
 from __future__ import annotations
 
@@ -28,6 +29,9 @@ _TEXT_BYTES = bytes(b for b in range(256) if b not in _BINARY_BYTES)
 
 _DECIMAL_COMMA = re.compile(r"^[+-]?\d*,\d+(?:[eE][+-]?\d+)?$|^[+-]?\d+,\d*(?:[eE][+-]?\d+)?$")
 _MISSING = {"", "na", "n/a", "nan", "null", "none", "-", "--"}
+
+#: the white space stripped from both ends of a line before the separator is known (all but the tab)
+_SPACE_BUT_TAB = "".join(chr(c) for c in range(0x3001) if chr(c).isspace() and c != 9)
 
 #: widest table parsed in one call to numpy.loadtxt (wider ones go line by line)
 _FAST_MAX_COLUMNS = 16
@@ -228,6 +232,11 @@ class DelimitedTable:
         except ValueError:
             raise KeyError(f"no column named {column!r}") from None
 
+    def lines(self, rows: slice | None = None) -> Iterator[tuple[int, str]]:
+        """``(line number, text)`` of every data row as read (white space around it removed, not split)."""
+        sl = rows if rows is not None else slice(None)
+        return zip(self.line_numbers[sl], self._rows[sl])
+
     def rows(self, rows: slice | None = None) -> Iterator[tuple[int, list | None]]:
         """``(line number, fields)`` of every data row as split (no count check); ``fields`` is
         None for a line with unbalanced quotes.  For callers with their own per-row policy."""
@@ -294,12 +303,17 @@ class DelimitedTable:
 
 
 def _data_lines(text: str, where: str, max_rows: int, subject: str):
-    """The non-blank, non-comment lines (stripped) and their 1-based line numbers; header included."""
+    """The non-blank, non-comment lines and their 1-based line numbers; header included.
+
+    White space around each line is removed except tabs, which may end empty fields of a
+    tab-separated row (the caller strips them when the separator is not a tab).
+    """
     lines = []
     numbers = []
     for n, raw in enumerate(text.splitlines(), start=1):
-        s = raw.strip()
-        if not s or s.startswith("#"):
+        s = raw.strip(_SPACE_BUT_TAB)
+        t = s.strip("\t") if s[:1] == "\t" or s[-1:] == "\t" else s
+        if not t or t.startswith("#"):
             continue
         lines.append(s)
         numbers.append(n)
@@ -379,8 +393,12 @@ def read_delimited_table(
     text = _decode_text(data, where, subject)
     del data
     lines, numbers = _data_lines(text, where, max_rows, subject)
+    had_tabs = "\t" in text
     del text
-    delim = _choose_delimiter(lines[0], lines[1] if len(lines) > 1 else None)
+    lines[0] = lines[0].strip()
+    delim = _choose_delimiter(lines[0], lines[1].strip() if len(lines) > 1 else None)
+    if delim != "\t" and had_tabs:
+        lines = [ln.strip() for ln in lines]
     quoted = delim is not None and any('"' in ln for ln in lines)
     header = _header_fields(lines[0], delim, numbers[0], where)
     return DelimitedTable(header, delim, quoted, numbers[0], lines[0], lines[1:], numbers[1:], where)
