@@ -235,6 +235,8 @@ def _add_batch_parser(sub):
     b.add_argument("--out", type=Path, required=True, help="output folder; rerun with the same folder to resume")
     b.add_argument("--workers", type=_positive_int, metavar="N",
                    help="parallel worker processes (default: the usable cores); with --dask local, Dask workers")
+    b.add_argument("--serial", action="store_true",
+                   help="fit one sweep at a time in this process (for debugging; same results)")
     b.add_argument("--dask", metavar="ADDRESS|local",
                    help="run on Dask: 'local' starts a local cluster, tcp://HOST:PORT joins a running scheduler "
                         "(needs pip install 'bayesprobe[dask]')")
@@ -468,10 +470,10 @@ def cmd_simulate(args) -> int:
         truth.update({"V_shift": extra["V_shift"], "I_cap": extra["I_cap"]})
     if args.n_i:
         truth["n_i"] = args.n_i
-    if args.model == "maxwellian":
-        truth["T_e"] = args.T_e
-    else:
+    if config.electron_model.two_temperature:
         truth.update({"T_e_cold": args.T_e, "T_e_hot": args.T_hot, "hot_fraction": args.hot_fraction})
+    else:
+        truth["T_e"] = args.T_e
     try:
         sim = simulate(truth, config=config, v_min=args.v_min, v_max=args.v_max, n_points=args.points,
                        noise_rel=args.noise_rel, noise_floor=args.noise_floor, outlier_fraction=args.outliers,
@@ -533,7 +535,8 @@ def cmd_batch(args) -> int:
                            sweep_column=args.sweep_column, sweep_table=args.sweep_table,
                            keep_posteriors=args.keep_posteriors, retry_failed=args.retry_failed,
                            figures=not args.no_figures, progress=None if not args.quiet else False,
-                           engine=getattr(args, "engine", "mcmc"), warm_start=args.warm_start)
+                           engine=getattr(args, "engine", "mcmc"), warm_start=args.warm_start,
+                           executor="serial" if args.serial else None)
     except KeyboardInterrupt:
         print(f"interrupted; finished sweeps are kept in {args.out} - rerun the same command to resume",
               file=sys.stderr)

@@ -189,3 +189,22 @@ def test_fit_prints_its_warnings_one_line_each(tmp_path):
     lines = [ln for ln in err.splitlines() if "[hysteresis-shift]" in ln]
     assert len(lines) == 1 and lines[0].startswith("caution [hysteresis-shift]: ") and stored[0]["message"] in lines[0]
     assert out == ""                                 # --quiet: no table; notes are not printed either
+
+
+def test_option_choices_follow_the_registries():
+    """The parser's lists of ion theories and electron models are the physics registries' names
+    (the parser keeps literal lists so that --help needs no numerical import; this keeps them in
+    step). Common practice, no source."""
+    from bayesprobe.cli import build_parser
+    from bayesprobe.physics.electron_models import ELECTRON_MODELS
+    from bayesprobe.physics.ions import ION_THEORIES
+
+    def choices(command, option):
+        sub = next(a for a in build_parser()._actions if a.dest == "command").choices[command]
+        return list(next(a for a in sub._actions if option in a.option_strings).choices)
+
+    for command in ("fit", "batch"):
+        assert choices(command, "--ion-collection") == list(ION_THEORIES)
+        assert choices(command, "--model") == [*ELECTRON_MODELS, "auto"]
+    assert choices("simulate", "--model") == list(ELECTRON_MODELS)
+    assert build_parser().parse_args(["batch", "x.npz", "--out", "o", "--serial"]).serial

@@ -46,7 +46,8 @@ from .ids import file_id_for, sweep_seed
 from .loaders import MAX_SWEEPS_PER_FILE
 from .profiles import plot_profiles
 from .readers import SweepItem, iter_sweeps
-from .records import MANIFEST_SCHEMA, RECORD_SCHEMA, STATUSES
+from ..schema import RECORD_SCHEMA, STATUSES
+from .records import MANIFEST_SCHEMA
 from .records import make_record as _record  # noqa: F401 - the record maker under its old name
 from .runner import BatchSummary, fit_many
 from .settings import load_sweep_table

@@ -14,7 +14,7 @@ from pathlib import Path
 
 import numpy as np
 
-from ..io import MAX_FILE_BYTES, _identify_columns, sanitise_id
+from ..io import MAX_FILE_BYTES, identify_columns, sanitise_id
 from ._messages import fail, one_line, show
 from .loaders import MAX_COORDS, MAX_SWEEPS_PER_FILE, SWEEP_ID_NAMES, check_size, cleaner, raising, single
 
@@ -47,7 +47,7 @@ def npz_sweeps(path: Path, opts):
             raise fail(f"{where} holds no arrays; save sweeps with numpy.savez(path, voltage=..., current=...)")
         headers = _npz_headers(zf, infos)
         keys = sorted(headers)
-        iv, ic, fv, fi, notes = _identify_columns(keys, opts["voltage_column"], opts["current_column"], where,
+        iv, ic, fv, fi, notes = identify_columns(keys, opts["voltage_column"], opts["current_column"], where,
                                                   what="array")
         kv, kc = keys[iv], keys[ic]
         for key in (kv, kc):

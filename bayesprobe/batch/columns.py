@@ -10,6 +10,7 @@ from pathlib import Path
 
 import numpy as np
 
+from ..schema import RESULTS_FIXED, RESULTS_STATS
 from ..io import sanitise_id
 from ..quantities import table_names
 from ._messages import one_line
@@ -24,9 +25,8 @@ STR_COLS = ("sweep_id", "label", "source", "status", "reason", "model", "engine"
 INT_COLS = ("index", "n_points", "n_steps", "n_draws")          # -1: missing
 FLOAT_COLS = ("credible_level", "r_hat_max", "ess_bulk_min", "tau_max", "khat")
 #: the fixed columns of results.csv, in order (the sweep coordinates follow ``index``)
-FIXED = ("sweep_id", "label", "source", "index", "status", "reason", "model", "converged", "credible_level",
-         "seed", "n_points", "engine", "r_hat_max", "ess_bulk_min", "tau_max", "n_steps", "n_draws", "khat")
-STATS = ("median", "ci_low", "ci_high")
+FIXED = RESULTS_FIXED
+STATS = RESULTS_STATS
 _TYPECODES = {"d": np.float64, "q": np.int64, "b": np.int8, "Q": np.uint64}
 _UNREADABLE = {"status": "failed",
                "reason": "the result record of this sweep is unreadable; delete it and rerun to fit it again"}

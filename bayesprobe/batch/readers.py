@@ -2,8 +2,8 @@
 the reader of its kind (:mod:`.array_files`, :mod:`.text_files`, or the ordinary one-sweep reader),
 one :class:`SweepItem` at a time in a deterministic order.
 
-Input is untrusted: files are never unpickled, multi-sweep files are read one sweep at a time,
-every size is capped, and an unreadable file or sweep becomes an item whose ``load`` raises
+Input is untrusted: files are never unpickled, multi-sweep NumPy files are read one sweep at a
+time and text tables whole (within the io size cap), every size is capped, and an unreadable file or sweep becomes an item whose ``load`` raises
 InputError with a one-line reason (the batch records it as failed and goes on).
 """
 from __future__ import annotations

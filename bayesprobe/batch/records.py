@@ -12,15 +12,14 @@ import json
 import math
 from pathlib import Path
 
+from .. import schema
 from ..io import atomic_write_bytes, atomic_write_text
+from ..schema import RECORD_SCHEMA
 from ._messages import fail, one_line, show
 
-RECORD_SCHEMA = "bayesprobe.batch-sweep/1"
 MANIFEST_SCHEMA = "bayesprobe.batch/1"
 #: largest per-sweep record read back when assembling the tables (bytes)
 MAX_RECORD_BYTES = 16 << 20
-#: the statuses of a sweep record
-STATUSES = ("ok", "not-converged", "failed")
 
 
 def make_record(meta: dict, seed, status: str, reason: str, summary=None) -> dict:
@@ -32,14 +31,9 @@ def make_record(meta: dict, seed, status: str, reason: str, summary=None) -> dic
 
 
 def read_record(p: Path):
-    """The record in file ``p``, or None if it is too large, unreadable or not a sweep record."""
-    try:
-        if p.stat().st_size > MAX_RECORD_BYTES:
-            return None
-        rec = json.loads(p.read_text(encoding="utf-8"))
-    except (OSError, ValueError):
-        return None
-    return rec if isinstance(rec, dict) and rec.get("schema") == RECORD_SCHEMA else None
+    """The record in file ``p``, checked by :func:`bayesprobe.schema.read_record`, or None if it
+    is too large, unreadable or not a sweep record."""
+    return schema.read_record(p, max_bytes=MAX_RECORD_BYTES)
 
 
 def finite_or_none(v):

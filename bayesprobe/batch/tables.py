@@ -11,7 +11,7 @@ import numpy as np
 from ..io import atomic_path, write_csv
 from .columns import FIXED, FLOAT_COLS, INT_COLS, STATS, Columns, read_columns
 from .profiles import plot_profiles
-from .records import STATUSES
+from ..schema import STATUSES
 
 RESULTS_SCHEMA = "bayesprobe.batch-results/1"
 _DESCRIPTION = {"median": "posterior median", "ci_low": "credible interval low", "ci_high": "credible interval high"}

@@ -9,7 +9,7 @@ import numpy as np
 
 from ..errors import InputError
 from ._messages import _fail, _show
-from .columns import _identify_columns
+from .columns import identify_columns
 
 
 def _npy_header(fp, where: str):
@@ -72,7 +72,7 @@ def _load_npy(path: Path, voltage_column, current_column, max_points: int):
                 f"{where} holds {count} points, more than the limit of {max_points}; split it into separate sweeps"
             )
         names = list(dtype.names)
-        iv, ic, fv, fi, notes = _identify_columns(names, voltage_column, current_column, where, what="field")
+        iv, ic, fv, fi, notes = identify_columns(names, voltage_column, current_column, where, what="field")
         for k in (iv, ic):
             _check_dtype(dtype[names[k]], where)
         arr = _np_load(path, where)
@@ -110,7 +110,7 @@ def _load_npz(path: Path, voltage_column, current_column, max_points: int, max_b
             keys = sorted(infos)
             if not keys:
                 raise _fail(f"{where} holds no arrays; save the sweep with numpy.savez(path, voltage=..., current=...)")
-            iv, ic, fv, fi, notes = _identify_columns(keys, voltage_column, current_column, where, what="array")
+            iv, ic, fv, fi, notes = identify_columns(keys, voltage_column, current_column, where, what="array")
             for k in (iv, ic):
                 info = infos[keys[k]]
                 if info.file_size > max_bytes:

@@ -16,7 +16,7 @@ import numpy as np
 
 from ..sweep import Sweep, detect_branches
 from ._messages import _fail, _show
-from .columns import _identify_columns, sanitise_id
+from .columns import identify_columns, sanitise_id
 from .limits import (MAX_COLUMNS, MAX_FILE_BYTES, MAX_POINTS, MIN_POINTS, MIN_VOLTAGE_SPAN, NUMPY_SUFFIXES,
                      TEXT_SUFFIXES, _check_file, _read_bytes)
 from .numpy_files import _load_npy, _load_npz
@@ -271,7 +271,7 @@ def _load_text(path: Path, data: bytes, voltage_column, current_column, max_poin
     where = _show(str(path), 120)
     table = read_delimited_table(data, where=where, max_rows=max_points, max_bytes=len(data))
     _check_sweep_table(table, where, max_points)
-    iv, ic, fv, fi, unit_notes = _identify_columns(table.header, voltage_column, current_column, where)
+    iv, ic, fv, fi, unit_notes = identify_columns(table.header, voltage_column, current_column, where)
     v, i = table.numbers([iv, ic])
     table_notes = table.notes
     del table
