@@ -497,7 +497,7 @@ def test_warm_start_changes_no_result_beyond_monte_carlo_error():
     series: medians and interval ends agree within Monte-Carlo error (the engine-comparison
     oracle of test_calibration: quantile MC sd from the ESS, exceedance count and systematic
     shift both checked)."""
-    from test_calibration import engines_disagree, fit_record
+    from cases.calibration import engines_disagree, fit_record
     V, I = _series(6, points=300, seed=50)
     cold, warm, prev = [], [], None
     for k in range(6):
