@@ -18,7 +18,6 @@ import numpy as np
 
 from .model import (ModelConfig, distortion_parameter_names, floating_potential, measured_floating_potential,
                     plasma_parameter_names, probe_current)
-from .physics.geometry import Probe
 from .sweep import Sweep, detect_branches
 
 __all__ = ["SimulatedSweep", "simulate", "DEFAULT_TRUTH"]
@@ -80,53 +79,10 @@ def simulate(truth: dict | None = None, *, config: ModelConfig | None = None,
         swept both ways); needed by the ``hysteresis`` switch. The sweep carries the directions.
     """
     config = config or ModelConfig()
-    model = config.electron_model
-    params = dict(DEFAULT_TRUTH)
-    if "T_e" not in model.parameter_names:
-        params.pop("T_e")
-    params.update({k: v for k, v in model.default_truth.items() if k not in params})
-    for name in distortion_parameter_names(config):
-        params[name] = 0.0
-    params.update(truth or {})
-    expected = plasma_parameter_names(config) + distortion_parameter_names(config)
-    unknown = set(params) - set(expected) - {"n_i", "T_e"}
-    if unknown:
-        raise ValueError(f"unknown truth parameter(s) {sorted(unknown)} for this model; "
-                         f"expected {', '.join(expected)}")
-    if "T_e" not in model.parameter_names:
-        params.pop("T_e", None)
-    if "n_i" not in params or config.quasi_neutral:
-        params["n_i"] = params["n_e"]
-    for name in ("noise_rel", "outlier_fraction", "outlier_scale"):
-        val = locals()[name]
-        if not np.isfinite(val) or val < 0:
-            raise ValueError(f"{name} must be a non-negative number, got {val!r}")
-    if outlier_fraction > 0.5:
-        raise ValueError("outlier_fraction must be at most 0.5")
-    if not isinstance(n_points, (int, np.integer)) or n_points < 2:
-        raise ValueError(f"n_points must be an integer >= 2, got {n_points!r}")
-
-    T_scale = float(model.coldest_temperature(params))
-    user_grid = voltage is not None
-    if voltage is None:
-        lo = params["V_p"] - 12.0 * T_scale - 20.0 if v_min is None else float(v_min)
-        hi = params["V_p"] + 3.0 * T_scale if v_max is None else float(v_max)
-        if not hi > lo:
-            raise ValueError(f"v_max ({hi}) must exceed v_min ({lo})")
-        voltage = np.linspace(lo, hi, n_points)
-    voltage = np.sort(np.asarray(voltage, float))
-    branches = order = None
-    if both_directions:
-        up = voltage if user_grid else np.linspace(voltage[0], voltage[-1], (n_points + 1) // 2)
-        recorded = np.concatenate([up, up[::-1]])
-        branches = detect_branches(recorded)
-        if branches is None:
-            raise ValueError("both_directions needs at least 20 points per direction")
-        order = np.argsort(recorded, kind="stable")
-        voltage = recorded[order]
-        branches = (branches[0][order], branches[1][order])
-    elif config.hysteresis:
-        raise ValueError("the hysteresis switch needs a sweep in both directions: pass both_directions=True")
+    params = _truth_parameters(truth, config)
+    _check_noise_options(noise_rel, outlier_fraction, outlier_scale, n_points)
+    voltage = _voltage_grid(voltage, v_min, v_max, n_points, params, config)
+    voltage, branches, order = _directions(voltage, n_points, both_directions, config)
     clean = probe_current(voltage, params, config, branches=branches)
     if noise_floor is None:
         I_ref = abs(float(probe_current(np.array([params["V_p"]]), params, config, distorted=False)[0]))
@@ -158,3 +114,64 @@ def simulate(truth: dict | None = None, *, config: ModelConfig | None = None,
              "outlier_fraction": float(outlier_fraction), "outlier_scale": float(outlier_scale),
              "n_outliers": n_out, "outlier_indices": outlier_indices, "seed": seed}
     return SimulatedSweep(sweep=sweep, truth=truth_out, config=config, noise=noise)
+
+
+def _truth_parameters(truth, config) -> dict:
+    """The true parameters: the defaults of the model, the distortions off, then ``truth``."""
+    model = config.electron_model
+    params = dict(DEFAULT_TRUTH)
+    if "T_e" not in model.parameter_names:
+        params.pop("T_e")
+    params.update({k: v for k, v in model.default_truth.items() if k not in params})
+    for name in distortion_parameter_names(config):
+        params[name] = 0.0
+    params.update(truth or {})
+    expected = plasma_parameter_names(config) + distortion_parameter_names(config)
+    unknown = set(params) - set(expected) - {"n_i", "T_e"}
+    if unknown:
+        raise ValueError(f"unknown truth parameter(s) {sorted(unknown)} for this model; "
+                         f"expected {', '.join(expected)}")
+    if "T_e" not in model.parameter_names:
+        params.pop("T_e", None)
+    if "n_i" not in params or config.quasi_neutral:
+        params["n_i"] = params["n_e"]
+    return params
+
+
+def _check_noise_options(noise_rel, outlier_fraction, outlier_scale, n_points) -> None:
+    for name, val in (("noise_rel", noise_rel), ("outlier_fraction", outlier_fraction),
+                      ("outlier_scale", outlier_scale)):
+        if not np.isfinite(val) or val < 0:
+            raise ValueError(f"{name} must be a non-negative number, got {val!r}")
+    if outlier_fraction > 0.5:
+        raise ValueError("outlier_fraction must be at most 0.5")
+    if not isinstance(n_points, (int, np.integer)) or n_points < 2:
+        raise ValueError(f"n_points must be an integer >= 2, got {n_points!r}")
+
+
+def _voltage_grid(voltage, v_min, v_max, n_points, params, config):
+    """The bias grid (sorted): the given one, or ``n_points`` from V_p - 12 T - 20 V to V_p + 3 T."""
+    if voltage is None:
+        T_scale = float(config.electron_model.coldest_temperature(params))
+        lo = params["V_p"] - 12.0 * T_scale - 20.0 if v_min is None else float(v_min)
+        hi = params["V_p"] + 3.0 * T_scale if v_max is None else float(v_max)
+        if not hi > lo:
+            raise ValueError(f"v_max ({hi}) must exceed v_min ({lo})")
+        return np.sort(np.linspace(lo, hi, n_points)), False
+    return np.sort(np.asarray(voltage, float)), True
+
+
+def _directions(grid, n_points, both_directions, config):
+    """(voltage sorted, branches or None, record order or None) for one or both sweep directions."""
+    voltage, user_grid = grid
+    if not both_directions:
+        if config.hysteresis:
+            raise ValueError("the hysteresis switch needs a sweep in both directions: pass both_directions=True")
+        return voltage, None, None
+    up = voltage if user_grid else np.linspace(voltage[0], voltage[-1], (n_points + 1) // 2)
+    recorded = np.concatenate([up, up[::-1]])
+    branches = detect_branches(recorded)
+    if branches is None:
+        raise ValueError("both_directions needs at least 20 points per direction")
+    order = np.argsort(recorded, kind="stable")
+    return recorded[order], (branches[0][order], branches[1][order]), order

@@ -21,7 +21,7 @@ def _comparison_block(s: dict) -> str:
         m = _dict(m)
         diff = m.get("elpd_diff_vs_maxwellian")
         diff_html = (f"{_n(diff, 4)} &plusmn; {_n(m.get('se_diff'), 3)}" if _num(diff) is not None
-                     else '<span class="na">reference</span>' if model == "maxwellian" else _n(None))
+                     else '<span class="na">reference</span>' if "elpd_diff_vs_maxwellian" not in m else _n(None))
         cls = ' class="selected"' if model == selected else ""
         rows.append(f"<tr{cls}><th scope=\"row\">{_e(model, 60)}{' &#10003; selected' if model == selected else ''}"
                     f'</th><td class="num">{_n(m.get("elpd_loo"), 6)}</td><td class="num">{_n(m.get("se"), 3)}</td>'
