@@ -21,7 +21,7 @@ import pytest
 from scipy.stats import binom
 
 import bayesprobe as bp
-from bayesprobe.io import InputError, load_sweep, sweep_from_arrays, write_sweep_csv
+from bayesprobe.io import load_sweep, sweep_from_arrays, write_sweep_csv
 from bayesprobe.sweep import detect_branches
 from cases.hysteresis import covers, make_case, run_case
 

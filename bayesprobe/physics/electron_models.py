@@ -50,6 +50,7 @@ class ElectronModel(ABC):
         """The Maxwellian groups ``((density, temperature), ...)`` the distribution is made of, from
         the parameter columns; None for a distribution that is not a sum of Maxwellians (it then
         overrides :meth:`current`)."""
+        return None
 
     def current(self, V, cols: Mapping, probe, *, sheath_expansion=False, slope=False):
         """Electron current (A, positive) at bias ``V`` for the parameter columns ``cols`` (``n_e``,

@@ -139,7 +139,7 @@ def _mark_potentials(ax, pots, *, label=False):
             handles.append(Line2D([], [], color=color, lw=1.3, ls="-" if name == "V_p" else "--",
                                   label=f"{tex_label(name)} posterior median, "
                                         f"{pots['level_pct']:g} % interval shaded"))
-    for name, v in pots["classical"].items():
+    for v in pots["classical"].values():
         ax.axvline(v, color=PALETTE["classical"], lw=0.8, ls=CLASSICAL_LS, zorder=1.1)
         if label:
             ax.plot([v], [1.0], marker="v", ms=6, color=PALETTE["classical"], clip_on=False,
@@ -148,7 +148,7 @@ def _mark_potentials(ax, pots, *, label=False):
         handles.append(Line2D([], [], color=PALETTE["classical"], lw=0.8, ls=CLASSICAL_LS, marker="v",
                               ms=5, label="classical " + " / ".join(
                                   tex_label(n) for n in pots["classical"])))
-    for name, v in pots["truth"].items():
+    for v in pots["truth"].values():
         ax.axvline(v, color=PALETTE["truth"], lw=0.9, ls=TRUTH_LS, zorder=1.2)
     if label and pots["truth"]:
         handles.append(Line2D([], [], color=PALETTE["truth"], lw=0.9, ls=TRUTH_LS,
