@@ -58,24 +58,11 @@ def atomic_write_bytes(path, data: bytes) -> Path:
     to disk and then renamed over ``path`` with :func:`os.replace`.  Missing
     parent directories are created.  Returns the path written.
     """
-    path = Path(path)
     data = bytes(memoryview(data))
-    parent = path.parent
-    parent.mkdir(parents=True, exist_ok=True)
-    fd, tmp = tempfile.mkstemp(prefix=f".{path.name[:100]}.", suffix=".tmp", dir=parent)
-    try:
-        with os.fdopen(fd, "wb") as fh:
+    with atomic_path(path) as tmp:
+        with open(tmp, "wb") as fh:
             fh.write(data)
-            fh.flush()
-            os.fsync(fh.fileno())
-        os.chmod(tmp, 0o666 & ~_umask())
-        os.replace(tmp, path)
-    except BaseException:
-        with contextlib.suppress(OSError):
-            os.unlink(tmp)
-        raise
-    _fsync_dir(parent)
-    return path
+    return Path(path)
 
 
 def atomic_write_text(path, text: str, encoding: str = "utf-8") -> Path:
