@@ -185,7 +185,8 @@ def fit(voltage, current=None, *, probe: Probe | None = None, ion="Ar", ion_mass
     engine : {"mcmc", "fast", "auto"}
         ``mcmc``: emcee ensembles until converged. ``fast`` (= ``auto``): importance
         sampling from the Laplace approximation, accepted only when the Pareto k-hat
-        and the importance-sampling ESS pass; otherwise emcee runs from the same optimum.
+        and the importance-sampling ESS pass; otherwise emcee runs from the same optimum
+        (the engines: :mod:`bayesprobe.inference.engines`).
     start : FitResult or dict, optional
         Warm start from a neighbouring sweep (time series, scans): its MAP (or a dict of
         every sampled parameter in physical units) joins the starting points and the
@@ -201,10 +202,6 @@ def fit(voltage, current=None, *, probe: Probe | None = None, ion="Ar", ion_mass
         nu and an outlier flag list); a list or a comma-separated string. ``"auto"`` fits each against the plain model and keeps those PSIS-LOO
         supports (rule of :mod:`bayesprobe.comparison`; hysteresis only for sweeps with both
         directions), with a plain-language note in ``summary()["distortions"]``. ``None`` or ``"none"``: as set in ``config``.
-
-    Returns
-    -------
-    FitResult
     options : FitOptions, optional
         All of the options above as one value (:class:`bayesprobe.options.FitOptions`);
         give either ``options`` or the individual keywords.

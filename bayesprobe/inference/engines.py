@@ -323,9 +323,7 @@ ENGINES: dict[str, Engine] = {
 
 
 def get_engine(name) -> Engine:
-    """The engine registered as ``name`` (an :class:`Engine` is returned as it is)."""
-    if isinstance(name, Engine):
-        return name
+    """The engine registered as ``name``."""
     try:
         return ENGINES[name]
     except (KeyError, TypeError):
