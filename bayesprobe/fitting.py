@@ -16,7 +16,7 @@ from .inference.optimize import approximate_map, find_map
 from .inference.posterior import LogPosterior, default_parameters
 from .inference.sampler import SamplerSettings
 from .model import ModelConfig
-from .options import MODEL_CHOICES, FitOptions
+from .options import MODEL_CHOICES, FitOptions  # noqa: F401  (MODEL_CHOICES: read by batch.fit_many)
 from .physics.electron_models import ELECTRON_MODELS
 from .physics.geometry import Probe
 from .result import FitResult, units_for
