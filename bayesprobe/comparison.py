@@ -10,6 +10,7 @@ from __future__ import annotations
 import numpy as np
 
 from .inference.arviz_adapter import compare, loo
+from .physics.electron_models import ELECTRON_MODELS
 
 __all__ = ["compare_models", "SELECTION_RULE", "ELPD_MIN", "SE_MULTIPLE", "loo_difference", "richer_supported"]
 
@@ -18,7 +19,8 @@ SE_MULTIPLE = 2.0
 SELECTION_RULE = (f"the two-temperature model is selected only if its elpd_loo exceeds the "
                   f"single-temperature model's by more than {ELPD_MIN:g} and by more than "
                   f"{SE_MULTIPLE:g} standard errors of the difference; otherwise the simpler model is kept")
-ORDER = ("maxwellian", "bi-maxwellian")
+#: electron model names, simplest first: the first is kept unless a richer one earns its place
+ORDER = tuple(sorted(ELECTRON_MODELS, key=lambda n: ELECTRON_MODELS[n].complexity))
 
 
 def loo_difference(simple, rich) -> dict:
@@ -58,7 +60,7 @@ def compare_models(results: dict):
             warnings.append(f"{k}: the fit did not meet the convergence criteria within its step budget "
                             f"({'; '.join(results[k].diagnostics.get('unmet', []))}); its elpd_loo is approximate")
         models[k]["converged"] = bool(results[k].converged)
-    simple, rich = ORDER
+    simple, rich = ORDER[0], ORDER[-1]
     selected = simple
     reasoning = ""
     if simple in loos and rich in loos:
@@ -66,7 +68,7 @@ def compare_models(results: dict):
         d = np.asarray(loos[rich].loo_i) - np.asarray(loos[simple].loo_i)
         diff = float(np.sum(d))
         se_diff = float(np.sqrt(d.size * np.var(d)))
-        models[rich]["elpd_diff_vs_maxwellian"] = diff
+        models[rich][f"elpd_diff_vs_{simple}"] = diff
         models[rich]["se_diff"] = se_diff
         if diff > ELPD_MIN and diff > SE_MULTIPLE * se_diff:
             selected = rich

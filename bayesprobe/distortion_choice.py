@@ -170,7 +170,9 @@ def _hysteresis_record(phys, level):
 
 
 def _temperature_name(result):
-    return "T_e" if "T_e" in result.draws else "T_e_eff"
+    """The temperature a distortion's effect is reported on: T_e, or the effective
+    temperature of a two-temperature model."""
+    return "T_e_eff" if result.config.electron_model.two_temperature else "T_e"
 
 
 def _shift(plain, chosen, name):

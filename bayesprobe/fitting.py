@@ -1,30 +1,33 @@
 """``fit``: one sweep in, a calibrated posterior out. Orchestrates physics and inference."""
 from __future__ import annotations
 
+import inspect
 import math
 import time
-from dataclasses import asdict, replace
+from dataclasses import asdict, dataclass, replace
 
 import numpy as np
 
 from .derived import derived_quantities
-from .distortion_choice import (apply_distortions, describe_distortions, distortion_starts, parse_distortions,
-                                select_distortions)
+from .distortion_choice import apply_distortions, describe_distortions, distortion_starts, select_distortions
 from .inference.arviz_adapter import build_inference_data
+from .inference.engines import ENGINES as _ENGINE_REGISTRY, N_STORED_DRAWS, SeedStreams, get_engine
 from .inference.optimize import approximate_map, find_map
 from .inference.posterior import LogPosterior, default_parameters
-from .inference.sampler import SamplerSettings, run_ensembles
-from .model import ELECTRON_MODELS, ModelConfig
+from .inference.sampler import SamplerSettings
+from .model import ModelConfig
+from .options import MODEL_CHOICES, FitOptions  # noqa: F401  (MODEL_CHOICES: read by batch.fit_many)
+from .physics.electron_models import ELECTRON_MODELS
 from .physics.geometry import Probe
 from .result import FitResult, units_for
 from .sweep import Sweep
 
-__all__ = ["fit", "make_config", "N_STORED_DRAWS"]
+__all__ = ["fit", "make_config", "N_STORED_DRAWS", "FitOptions"]
 
-#: posterior draws kept in the result (thinned evenly from the converged chains)
-N_STORED_DRAWS = 2000
-MODEL_CHOICES = ELECTRON_MODELS + ("auto",)
-ENGINES = ("mcmc", "fast", "auto")
+#: option values of ``engine`` (the registry is :data:`bayesprobe.inference.engines.ENGINES`)
+ENGINES = tuple(_ENGINE_REGISTRY)
+#: the simplest electron model: the classical start analysis assumes it
+_SIMPLEST = min(ELECTRON_MODELS.values(), key=lambda m: m.complexity)
 #: step budget of the two-temperature fit inside ``model="auto"`` before the comparison
 AUTO_RICH_MAX_STEPS = 4000
 
@@ -139,162 +142,12 @@ def _plain_seeded_starts(sweep, config, priors, student_nu, cls, params):
     return np.array(out)
 
 
-def _fit_one(sweep: Sweep, config: ModelConfig, *, credible_level, priors, student_nu, seed, settings,
-             progress, cls, engine="mcmc", is_settings=None, start=None) -> FitResult:
-    V, I = sweep.voltage, sweep.current
-    params = default_parameters(config, V, I, fit_nu=student_nu == "fit").with_priors(priors)
-    logpost = LogPosterior(V, I, config, params, student_nu=student_nu, branches=sweep.branches)
-    t0 = time.perf_counter()
-    starts = _starts(params, cls, V, I, config)
-    z_warm = _warm_start_z(params, start)
-    if z_warm is None and config.distorted:
-        # distortions perturb the plain characteristic: its optimum (cheap and well posed) with the
-        # distortion starts joins the candidates (a far start can settle in a spurious mode with a
-        # large V_rf and V_p above the sweep)
-        starts = np.vstack([_plain_seeded_starts(sweep, config, priors, student_nu, cls, params), starts])
-    if z_warm is not None:
-        # the neighbour's optimum joins the candidates; the local search runs from the best one only
-        starts = np.vstack([z_warm[None, :], starts])
-        mp = find_map(logpost, starts, n_local=1)
-    else:
-        mp = find_map(logpost, starts)
-    t_map = time.perf_counter() - t0
-    ss = np.random.SeedSequence(seed)
-    s_sampler, s_ppc, s_is = ss.spawn(3)          # the first two match the MCMC-only seeding
-    d = len(params)
-    is_run = None
-    fallback_reason = None
-    if engine in ("fast", "auto"):
-        from .inference.importance import ImportanceSettings, importance_sample
-        is_settings = is_settings or ImportanceSettings()
-        is_run = importance_sample(logpost, mp.z, mp.cov, settings=is_settings, seed=s_is)
-        if not is_run.accepted:
-            fallback_reason = "; ".join(is_run.reasons)
-    use_is = is_run is not None and is_run.accepted
-    if use_is:
-        E, Sp, W, thin = 1, is_run.draws.shape[0], 1, 1
-        Zflat = is_run.draws
-        lp_flat = is_run.log_prob
-        run = None
-    else:
-        run = run_ensembles(logpost, mp.z, mp.cov, settings=settings, seed=s_sampler, progress=progress)
-        # thin evenly to about N_STORED_DRAWS draws, chain = independent ensemble
-        E, S, W, d = run.chains.shape
-        thin = max(1, int(S * W * E / N_STORED_DRAWS))
-        Z = run.chains[:, ::thin]                           # (E, S', W, d)
-        Sp = Z.shape[1]
-        Zflat = Z.reshape(-1, d)
-        lp_flat = run.log_prob[:, ::thin].reshape(-1)
-    t_post = time.perf_counter()
-    # per-draw work once per distinct draw (resampled and rejected-move draws repeat), and one
-    # model evaluation shared by the pointwise log-likelihood and the replicated sweeps
-    Zu, inv = np.unique(Zflat, axis=0, return_inverse=True)
-    inv = inv.reshape(-1)
-    phys_u = params.to_physical(Zu)
-    phys = {n: v[inv] for n, v in phys_u.items()}
-    derived = {n: v[inv] for n, v in derived_quantities(phys_u, config).items()}
-    distortion_record = describe_distortions(logpost, Zu, phys, V, counts=np.bincount(inv, minlength=len(Zu)),
-                                             credible_level=credible_level)
-    t_post = time.perf_counter() - t_post
-
-    def cd(x):  # (E*S'*W,) -> (chain=E, draw=S'*W)
-        return np.asarray(x).reshape(E, Sp * W, *np.shape(x)[1:])
-
-    draws = {n: cd(v) for n, v in phys.items()}
-    draws.update({n: cd(v) for n, v in derived.items()})
-    units = units_for(list(draws), params)
-
-    if use_is:
-        # all quantities share the importance weights: one ESS for everything, no R-hat
-        ess_all = {n: float(is_run.ess) for n in draws}
-        rhat_all = {}
-        ess_min, rhat_max = float(is_run.ess), None
-        converged = True
-        reasons = []
-        engine_diag = {"tau_max": None, "tau": {}, "n_steps": 0, "burn_in": 0, "thin": 1, "n_ensembles": 0,
-                       "n_walkers": 0, "acceptance": None, "history": is_run.history,
-                       "timings_s": {"map": t_map, "importance": is_run.timings, "posterior_processing": t_post}}
-    else:
-        from .inference.arviz_adapter import ess_bulk, rhat_rank
-        ess_all, rhat_all = {}, {}
-        for n, x in draws.items():
-            if np.all(np.isfinite(x)) and np.ptp(x) > 0:
-                ess_all[n] = ess_bulk(x)
-                rhat_all[n] = rhat_rank(x)
-        # sampled parameters: the run's own diagnostics over the full kept chains
-        for j, n in enumerate(params.names):
-            ess_all[n] = float(run.ess[j])
-            rhat_all[n] = float(run.rhat[j])
-        reported = [n for n in draws if n in ess_all]
-        ess_min = float(min(ess_all[n] for n in reported))
-        rhat_max = float(max(rhat_all[n] for n in reported))
-        converged = bool(run.converged and ess_min >= settings.ess_min and rhat_max <= settings.rhat_max)
-        reasons = list(run.reasons)
-        if run.converged and not converged:
-            reasons.append(f"derived quantities: ESS {ess_min:.0f}, R-hat {rhat_max:.4f}")
-        engine_diag = {"tau_max": float(np.max(run.tau)),
-                       "tau": {n: float(t) for n, t in zip(params.names, run.tau)},
-                       "n_steps": int(run.n_steps), "burn_in": int(run.burn), "thin": int(thin),
-                       "n_ensembles": int(E), "n_walkers": int(W), "acceptance": run.acceptance,
-                       "history": run.history,
-                       "timings_s": {"map": t_map, **run.timings, "posterior_processing": t_post}}
-
-    diagnostics = {
-        "r_hat_max": rhat_max, "ess_bulk_min": ess_min, "n_draws": int(E * Sp * W), "converged": converged,
-        "engine": "importance" if use_is else "mcmc", "engine_requested": engine,
-        "criteria": {"tau_multiple_min": settings.min_tau_multiple, "r_hat_max": settings.rhat_max,
-                     "ess_bulk_min": settings.ess_min},
-        "unmet": reasons, "ess_bulk": ess_all, "r_hat": rhat_all,
-        "map_hessian_ok": bool(mp.hessian_ok), "warm_start": z_warm is not None, **engine_diag,
-    }
-    if is_run is not None:
-        diagnostics.update({"khat": float(is_run.khat), "is_ess": float(is_run.ess), "is_rounds": is_run.n_rounds,
-                            "is_n_evaluations": int(is_run.n_evaluations), "fallback_reason": fallback_reason})
-        diagnostics["criteria"].update({"khat_max": is_settings.khat_max, "is_ess_min": is_settings.ess_min})
-
-    coords = {"point": np.arange(V.size)}
-    sample_stats = {"lp": cd(lp_flat)}
-    def build_idata():
-        # the pointwise log-likelihood and the replicated sweeps are only needed for model
-        # comparison, the fit figure and posterior.nc, so they are computed on first use (a batch
-        # that keeps only the summaries never pays for them); the seeded stream makes them the
-        # same whenever that is
-        mu_u = logpost.model_current(Zu)
-        loglik = logpost.pointwise_loglik(Zu, mu=mu_u)[inv]
-        ppc = logpost.posterior_predictive(Zflat, np.random.default_rng(s_ppc), mu=mu_u[inv])
-        return build_inference_data(
-            posterior=draws,
-            log_likelihood={"current": cd(loglik)},
-            observed_data={"current": I},
-            posterior_predictive={"current": cd(ppc)},
-            sample_stats=sample_stats,
-            constant_data={"voltage": V} if sweep.branches is None else
-            {"voltage": V, "direction": sweep.branches[0], "ramp": sweep.branches[1]},
-            coords=coords, dims={"current": ["point"], "voltage": ["point"], "direction": ["point"],
-                                 "ramp": ["point"]},
-            attrs={"bayesprobe_model": config.electrons, "parameter_order": ",".join(params.names),
-                   "units": ";".join(f"{k}={v}" for k, v in units.items()),
-                   "credible_level": credible_level, "thin_steps": thin},
-        )
-
-    cls_dict = cls.to_dict() if not isinstance(cls, Exception) else {"error": str(cls)}
-    map_phys = {n: float(v[0]) for n, v in params.to_physical(mp.z[None]).items()}
-    return FitResult(model=config.electrons, config=config, voltage=V, current=I, draws=draws, units=units,
-                     parameter_order=params.names, priors=params.describe(), diagnostics=diagnostics,
-                     classical=cls_dict, credible_level=credible_level, idata_builder=build_idata,
-                     sweep_info={"source": sweep.source, "sweep_id": sweep.sweep_id, "n_points": sweep.n_points,
-                                 "notes": list(sweep.notes), "sign_flipped": sweep.sign_flipped,
-                                 "both_directions": sweep.branches is not None},
-                     map_estimate=map_phys, student_nu=student_nu, seed=seed,
-                     settings=asdict(settings), distortions=distortion_record, branches=sweep.branches)
-
-
 def fit(voltage, current=None, *, probe: Probe | None = None, ion="Ar", ion_mass=None,
         ion_collection="auto", model="maxwellian", credible_level=0.9, priors=None, student_nu=None,
         quasi_neutral=False, T_i=0.026, bohm_factor=float(np.exp(-0.5)), seed: int | None = 0,
         sampler: SamplerSettings | None = None, progress=None, sign="auto",
         config: ModelConfig | None = None, engine: str = "mcmc", start=None,
-        distortions=None) -> FitResult:
+        distortions=None, options: FitOptions | None = None) -> FitResult:
     """Fit the whole characteristic of one sweep and return its posterior.
 
     Parameters
@@ -332,7 +185,8 @@ def fit(voltage, current=None, *, probe: Probe | None = None, ion="Ar", ion_mass
     engine : {"mcmc", "fast", "auto"}
         ``mcmc``: emcee ensembles until converged. ``fast`` (= ``auto``): importance
         sampling from the Laplace approximation, accepted only when the Pareto k-hat
-        and the importance-sampling ESS pass; otherwise emcee runs from the same optimum.
+        and the importance-sampling ESS pass; otherwise emcee runs from the same optimum
+        (the engines: :mod:`bayesprobe.inference.engines`).
     start : FitResult or dict, optional
         Warm start from a neighbouring sweep (time series, scans): its MAP (or a dict of
         every sampled parameter in physical units) joins the starting points and the
@@ -348,38 +202,53 @@ def fit(voltage, current=None, *, probe: Probe | None = None, ion="Ar", ion_mass
         nu and an outlier flag list); a list or a comma-separated string. ``"auto"`` fits each against the plain model and keeps those PSIS-LOO
         supports (rule of :mod:`bayesprobe.comparison`; hysteresis only for sweeps with both
         directions), with a plain-language note in ``summary()["distortions"]``. ``None`` or ``"none"``: as set in ``config``.
+    options : FitOptions, optional
+        All of the options above as one value (:class:`bayesprobe.options.FitOptions`);
+        give either ``options`` or the individual keywords.
 
     Returns
     -------
     FitResult
     """
-    if not (isinstance(credible_level, (int, float)) and 0 < credible_level < 1):
-        raise ValueError(f"credible_level must lie strictly between 0 and 1, got {credible_level!r}")
-    if model not in MODEL_CHOICES:
-        raise ValueError(f"model must be one of {', '.join(MODEL_CHOICES)}, got {model!r}")
-    if student_nu is not None and student_nu != "fit" and not (
-            isinstance(student_nu, (int, float, np.integer, np.floating)) and np.isfinite(student_nu)
-            and student_nu > 0):
-        raise ValueError(f"student_nu must be a positive number or 'fit', got {student_nu!r}")
-    wanted = parse_distortions(distortions)
-    if wanted != "auto" and "outliers" in wanted:
-        apply_distortions(("outliers",), ModelConfig(), student_nu)     # checks the student_nu conflict early
-    if engine not in ENGINES:
-        raise ValueError(f"engine must be one of {', '.join(ENGINES)}, got {engine!r}")
-    if seed is not None and not isinstance(seed, (int, np.integer)):
-        raise ValueError(f"seed must be an integer, got {seed!r}")
-    sweep = _as_sweep(voltage, current, sign)
-    if config is None:
-        config = make_config(probe=probe, ion=ion, ion_mass=ion_mass, ion_collection=ion_collection,
-                             quasi_neutral=quasi_neutral, T_i=T_i, bohm_factor=bohm_factor)
-    settings = sampler or SamplerSettings()
-    if wanted == "auto":
+    opts = _options(dict(locals()))
+    return _fit(_as_sweep(voltage, current, opts.sign), opts)
+
+
+def _options(given: dict) -> FitOptions:
+    """The FitOptions of a call of :func:`fit` (its keywords, or ``options`` with no other keyword)."""
+    options = given.pop("options")
+    given.pop("voltage"), given.pop("current")
+    if options is not None:
+        if not isinstance(options, FitOptions):
+            raise ValueError(f"options must be a bayesprobe.options.FitOptions, got {type(options).__name__}")
+        changed = [k for k, v in given.items() if not _is_default(v, _FIT_DEFAULTS[k])]
+        if changed:
+            raise ValueError(f"give the options either as keywords or as options=FitOptions(...), not both "
+                             f"(also given: {', '.join(changed)})")
+        return options
+    physics = {k: given.pop(k) for k in _PHYSICS_KEYWORDS}
+    opts = FitOptions(**given)
+    if opts.config is None:
+        opts = opts.with_(config=make_config(**physics))
+    return opts
+
+
+def _is_default(value, default) -> bool:
+    try:
+        return value is default or (type(value) is type(default) and bool(value == default))
+    except (TypeError, ValueError):
+        return False
+
+
+def _fit(sweep: Sweep, opts: FitOptions) -> FitResult:
+    """Distortions (named or chosen by PSIS-LOO), then the electron model(s)."""
+    config = opts.config if opts.config is not None else make_config()
+    if opts.selects_distortions:
         return select_distortions(
-            lambda cfg, nu: fit(sweep, config=cfg, model=model, credible_level=credible_level,
-                                priors=_distortion_priors_for(priors, cfg, nu), student_nu=nu, seed=seed,
-                                sampler=settings, progress=progress, engine=engine, start=start),
-            config, student_nu, both_directions=sweep.branches is not None)
-    config, student_nu = apply_distortions(wanted, config, student_nu)
+            lambda cfg, nu: _fit(sweep, opts.with_(config=cfg, priors=_distortion_priors_for(opts.priors, cfg, nu),
+                                                   student_nu=nu, distortions=None)),
+            config, opts.student_nu, both_directions=sweep.branches is not None)
+    config, student_nu = apply_distortions(opts.distortions, config, opts.student_nu)
     if config.hysteresis and sweep.branches is None:
         raise ValueError("the hysteresis distortion needs a sweep recorded with rising and falling bias "
                          "(this one has a single direction)")
@@ -387,37 +256,135 @@ def fit(voltage, current=None, *, probe: Probe | None = None, ion="Ar", ion_mass
     # which made each L-BFGS-B iteration ~10x slower on a 2-core machine with other load
     from threadpoolctl import threadpool_limits
     with threadpool_limits(1, user_api="blas"):
-        return _fit_models(sweep, config, model=model, settings=settings, credible_level=credible_level,
-                           priors=priors, student_nu=student_nu, seed=seed, progress=progress, engine=engine,
-                           start=start)
+        return _fit_models(sweep, opts.with_(config=config, student_nu=student_nu, distortions=None))
 
 
-def _fit_models(sweep, config, *, model, settings, credible_level, priors, student_nu, seed, progress, engine,
-                start):
+def _fit_models(sweep, opts: FitOptions):
     """The electron model(s) asked for, and the PSIS-LOO choice between them for ``model="auto"``."""
-    cls = _classical(sweep.voltage, sweep.current, config.undistorted().with_(electrons="maxwellian"))
-    kinds = ELECTRON_MODELS if model == "auto" else (model,)
+    config = opts.config
+    cls = _classical(sweep.voltage, sweep.current, config.undistorted().with_(electrons=_SIMPLEST.name))
     results = {}
-    for kind in kinds:
-        s = settings
-        if model == "auto" and kind == "bi-maxwellian" and settings.max_steps > AUTO_RICH_MAX_STEPS:
+    for m in opts.electron_models:
+        o = opts.with_(priors=_priors_for(opts.priors, m))
+        if opts.selects_model and m.two_temperature and opts.sampler.max_steps > AUTO_RICH_MAX_STEPS:
             # an unsupported hot population leaves a long, flat ridge that mixes slowly; its LOO is
             # only needed to show it does not win. If it does win, it is re-run with the full budget.
-            s = replace(settings, max_steps=AUTO_RICH_MAX_STEPS)
-        results[kind] = _fit_one(sweep, config.with_(electrons=kind), credible_level=credible_level,
-                                 priors=_priors_for(priors, kind), student_nu=student_nu, seed=seed,
-                                 settings=s, progress=progress, cls=cls, engine=engine, start=start)
+            o = o.with_(sampler=replace(opts.sampler, max_steps=AUTO_RICH_MAX_STEPS))
+        results[m.name] = _fit_one(sweep, config.with_(electrons=m.name), o, cls)
     if len(results) == 1:
-        return results[kinds[0]]
+        return next(iter(results.values()))
     from .comparison import compare_models
     chosen = compare_models(results)
-    if chosen.model == "bi-maxwellian" and not chosen.converged and settings.max_steps > AUTO_RICH_MAX_STEPS:
-        full = _fit_one(sweep, config.with_(electrons="bi-maxwellian"), credible_level=credible_level,
-                        priors=_priors_for(priors, "bi-maxwellian"), student_nu=student_nu, seed=seed,
-                        settings=settings, progress=progress, cls=cls, engine=engine)
-        results["bi-maxwellian"] = full
+    m = chosen.config.electron_model
+    if m.two_temperature and not chosen.converged and opts.sampler.max_steps > AUTO_RICH_MAX_STEPS:
+        results[m.name] = _fit_one(sweep, config.with_(electrons=m.name),
+                                   opts.with_(priors=_priors_for(opts.priors, m), start=None), cls)
         chosen = compare_models(results)
     return chosen
+
+
+def _fit_one(sweep: Sweep, config: ModelConfig, opts: FitOptions, cls) -> FitResult:
+    """One electron model: optimum, engine draws, quantities of every draw, diagnostics."""
+    V, I = sweep.voltage, sweep.current
+    params = default_parameters(config, V, I, fit_nu=opts.student_nu == "fit").with_priors(opts.priors)
+    logpost = LogPosterior(V, I, config, params, student_nu=opts.student_nu, branches=sweep.branches)
+    t0 = time.perf_counter()
+    mp, warm = _optimum(sweep, config, opts, cls, params, logpost)
+    t_map = time.perf_counter() - t0
+    seeds = SeedStreams.from_seed(opts.seed)
+    run = get_engine(opts.engine).run(logpost, mp.z, mp.cov, seeds, opts.engine_settings)
+    post = _Posterior.of(run, params, logpost, V, opts.credible_level)
+    diagnostics = replace(run.quantity_diagnostics(post.draws, params.names), engine_requested=opts.engine,
+                          map_hessian_ok=bool(mp.hessian_ok), warm_start=warm, map_s=t_map, posterior_s=post.seconds)
+    cls_dict = cls.to_dict() if not isinstance(cls, Exception) else {"error": str(cls)}
+    map_phys = {n: float(v[0]) for n, v in params.to_physical(mp.z[None]).items()}
+    return FitResult(model=config.electrons, config=config, voltage=V, current=I, draws=post.draws,
+                     units=post.units, parameter_order=params.names, priors=params.describe(),
+                     diagnostics=diagnostics.to_dict(), classical=cls_dict, credible_level=opts.credible_level,
+                     idata_builder=_idata_builder(sweep, logpost, run, post, seeds.predictive, opts.credible_level,
+                                                  thin=diagnostics.thin),
+                     sweep_info={"source": sweep.source, "sweep_id": sweep.sweep_id, "n_points": sweep.n_points,
+                                 "notes": list(sweep.notes), "sign_flipped": sweep.sign_flipped,
+                                 "both_directions": sweep.branches is not None},
+                     map_estimate=map_phys, student_nu=opts.student_nu, seed=opts.seed,
+                     settings=asdict(opts.sampler), distortions=post.distortions, branches=sweep.branches)
+
+
+def _optimum(sweep, config, opts, cls, params, logpost):
+    """The MAP (with its Laplace covariance) and whether a warm start joined the candidates."""
+    V, I = sweep.voltage, sweep.current
+    starts = _starts(params, cls, V, I, config)
+    z_warm = _warm_start_z(params, opts.start)
+    if z_warm is None and config.distorted:
+        # distortions perturb the plain characteristic: its optimum (cheap and well posed) with the
+        # distortion starts joins the candidates (a far start can settle in a spurious mode with a
+        # large V_rf and V_p above the sweep)
+        starts = np.vstack([_plain_seeded_starts(sweep, config, opts.priors, opts.student_nu, cls, params), starts])
+    if z_warm is not None:
+        # the neighbour's optimum joins the candidates; the local search runs from the best one only
+        return find_map(logpost, np.vstack([z_warm[None, :], starts]), n_local=1), True
+    return find_map(logpost, starts), False
+
+
+@dataclass
+class _Posterior:
+    """Every quantity at every draw of an engine run, computed once per distinct draw."""
+
+    draws: dict            # name -> (chain, draw): sampled parameters, then derived quantities
+    units: dict
+    unique: np.ndarray     # distinct draws in z
+    inverse: np.ndarray    # draw -> row of ``unique``
+    distortions: dict | None
+    seconds: float
+
+    @classmethod
+    def of(cls, run, params, logpost, V, credible_level):
+        t = time.perf_counter()
+        # per-draw work once per distinct draw (resampled and rejected-move draws repeat), and one
+        # model evaluation shared by the pointwise log-likelihood and the replicated sweeps
+        Zu, inv = np.unique(run.draws, axis=0, return_inverse=True)
+        inv = inv.reshape(-1)
+        phys_u = params.to_physical(Zu)
+        phys = {n: v[inv] for n, v in phys_u.items()}
+        derived = {n: v[inv] for n, v in derived_quantities(phys_u, logpost.config).items()}
+        record = describe_distortions(logpost, Zu, phys, V, counts=np.bincount(inv, minlength=len(Zu)),
+                                      credible_level=credible_level)
+        seconds = time.perf_counter() - t
+        draws = {n: run.per_chain(v) for n, v in phys.items()}
+        draws.update({n: run.per_chain(v) for n, v in derived.items()})
+        return cls(draws=draws, units=units_for(list(draws), params), unique=Zu, inverse=inv,
+                   distortions=record, seconds=seconds)
+
+
+def _idata_builder(sweep, logpost, run, post, ppc_seed, credible_level, thin):
+    """The InferenceData of a fit, built on first use.
+
+    The pointwise log-likelihood and the replicated sweeps are only needed for model
+    comparison, the fit figure and posterior.nc, so a batch that keeps only the summaries
+    never pays for them; the seeded stream makes them the same whenever they are built.
+    """
+    V, I, config = sweep.voltage, sweep.current, logpost.config
+    names = logpost.parameters.names
+
+    def build():
+        mu_u = logpost.model_current(post.unique)
+        loglik = logpost.pointwise_loglik(post.unique, mu=mu_u)[post.inverse]
+        ppc = logpost.posterior_predictive(run.draws, np.random.default_rng(ppc_seed), mu=mu_u[post.inverse])
+        return build_inference_data(
+            posterior=post.draws,
+            log_likelihood={"current": run.per_chain(loglik)},
+            observed_data={"current": I},
+            posterior_predictive={"current": run.per_chain(ppc)},
+            sample_stats={"lp": run.per_chain(run.log_prob)},
+            constant_data={"voltage": V} if sweep.branches is None else
+            {"voltage": V, "direction": sweep.branches[0], "ramp": sweep.branches[1]},
+            coords={"point": np.arange(V.size)},
+            dims={"current": ["point"], "voltage": ["point"], "direction": ["point"], "ramp": ["point"]},
+            attrs={"bayesprobe_model": config.electrons, "parameter_order": ",".join(names),
+                   "units": ";".join(f"{k}={v}" for k, v in post.units.items()),
+                   "credible_level": credible_level, "thin_steps": thin},
+        )
+    return build
 
 
 def _distortion_priors_for(priors, config, student_nu):
@@ -433,11 +400,14 @@ def _distortion_priors_for(priors, config, student_nu):
     return {k: v for k, v in priors.items() if k not in absent}
 
 
-def _priors_for(priors, kind):
-    """Drop prior overrides that do not apply to this electron model (auto fits both)."""
+def _priors_for(priors, model):
+    """Drop prior overrides of the other electron models' parameters (``model="auto"`` fits all)."""
     if not priors:
         return priors
-    single = {"T_e"}
-    double = {"T_e_cold", "T_e_hot", "hot_fraction"}
-    skip = double if kind == "maxwellian" else single
+    skip = {n for m in ELECTRON_MODELS.values() for n in m.parameter_names} - set(model.parameter_names)
     return {k: v for k, v in priors.items() if k not in skip}
+
+
+#: keywords of :func:`fit` that build the model configuration (:func:`make_config`)
+_PHYSICS_KEYWORDS = ("probe", "ion", "ion_mass", "ion_collection", "quasi_neutral", "T_i", "bohm_factor")
+_FIT_DEFAULTS = {k: p.default for k, p in inspect.signature(fit).parameters.items()}

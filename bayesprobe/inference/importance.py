@@ -258,82 +258,107 @@ def importance_sample(logpost, center, cov, *, settings: ImportanceSettings = Im
     rng = np.random.default_rng(ss)
     center = np.asarray(center, float).ravel()
     d = center.size
-    cov = np.asarray(cov, float).reshape(d, d)
-    t_prop = t_model = t_psis = 0.0
-
-    proposals: list[StudentTProposal] = []
-    counts: list[int] = []
-    Z_all = np.empty((0, d))
-    lp_all = np.empty(0)
-    history = []
-    reasons: list[str] = []
-    lw = np.empty(0)
-    khat, ess = np.inf, 0.0
-    prop = StudentTProposal(center, s.scale**2 * cov, s.df)
+    st = _Rounds(d)
+    prop = StudentTProposal(center, s.scale**2 * np.asarray(cov, float).reshape(d, d), s.df)
     n_next = int(s.n_proposals)
     for r in range(int(s.max_rounds)):
-        tp = time.perf_counter()
-        Z = prop.sample(n_next, rng)
-        proposals.append(prop)
-        counts.append(n_next)
-        t_prop += time.perf_counter() - tp
-        tm = time.perf_counter()
-        lp = _evaluate(logpost, Z, int(s.chunk_rows))
-        t_model += time.perf_counter() - tm
-        Z_all = np.vstack([Z_all, Z])
-        lp_all = np.concatenate([lp_all, lp])
-        tp = time.perf_counter()
-        # deterministic-mixture (balance heuristic) proposal density of every point so far
-        n_tot = float(sum(counts))
-        log_q = logsumexp(np.stack([np.log(c / n_tot) + p.logpdf(Z_all) for p, c in zip(proposals, counts)]),
-                          axis=0)
-        t_prop += time.perf_counter() - tp
-        raw = np.where(np.isfinite(lp_all), lp_all - log_q, -np.inf)
-        reasons = []
-        if not np.any(np.isfinite(raw)):
-            khat, ess = np.inf, 0.0
-            lw = np.full(raw.size, -np.inf)
-            reasons.append("no proposal has a finite posterior density")
-        else:
-            tk = time.perf_counter()
-            lw, khat = psis_smooth(raw)
-            t_psis += time.perf_counter() - tk
-            w = np.exp(lw)
-            ess = float(1.0 / np.sum(w * w))
-            if not (khat <= s.khat_max):
-                reasons.append(f"Pareto k-hat {khat:.3f} > {s.khat_max:g}")
-            if ess < s.ess_min:
-                reasons.append(f"importance-sampling ESS {ess:.0f} < {s.ess_min:g}")
-        history.append({"round": r + 1, "n_proposals": int(n_next), "n_total": int(n_tot),
-                        "khat": float(khat), "ess": float(ess),
-                        "finite_fraction": float(np.mean(np.isfinite(lp))), "unmet": list(reasons)})
-        if not reasons or r + 1 >= s.max_rounds or not np.any(np.isfinite(raw)):
+        finite = st.add_round(logpost, prop, n_next, rng, s)
+        if not st.reasons or r + 1 >= s.max_rounds or not finite:
             break
-        # next proposal: refit to the weighted draws so far
-        tp = time.perf_counter()
-        m, C = _weighted_moments(Z_all, lw)
-        if ess >= 5 * d and _is_positive_definite(C):
-            prop = StudentTProposal(m, s.scale**2 * C, s.df)
-        else:
-            prop = StudentTProposal(prop.center, 4.0 * prop.cov, s.df)
-        if khat <= s.khat_max and ess > 0:
-            n_next = max(int(s.n_proposals) // 2, int(np.ceil(1.25 * n_tot * (s.ess_min / ess - 1.0))))
-        else:
-            n_next = 2 * int(s.n_proposals)
-        t_prop += time.perf_counter() - tp
+        prop, n_next = st.next_proposal(prop, s)
 
     tr = time.perf_counter()
-    if np.any(np.isfinite(lw)):
-        idx = systematic_resample(lw, int(s.n_draws), rng)
+    if np.any(np.isfinite(st.lw)):
+        idx = systematic_resample(st.lw, int(s.n_draws), rng)
         idx = idx[rng.permutation(idx.size)]
-        draws, log_prob = Z_all[idx], lp_all[idx]
+        draws, log_prob = st.Z[idx], st.lp[idx]
     else:
         idx = np.empty(0, dtype=np.intp)
         draws, log_prob = np.empty((0, d)), np.empty(0)
     t_res = time.perf_counter() - tr
     return ImportanceRun(
-        accepted=not reasons, reasons=reasons, khat=float(khat), ess=float(ess), draws=draws, log_prob=log_prob,
-        timings={"proposal_s": t_prop, "model_s": t_model, "psis_s": t_psis, "resample_s": t_res,
+        accepted=not st.reasons, reasons=st.reasons, khat=float(st.khat), ess=float(st.ess), draws=draws,
+        log_prob=log_prob,
+        timings={"proposal_s": st.t_prop, "model_s": st.t_model, "psis_s": st.t_psis, "resample_s": t_res,
                  "total_s": time.perf_counter() - t_start},
-        n_evaluations=int(lp_all.size), n_rounds=len(history), history=history,
-        proposals=Z_all, log_weights=lw, draw_index=idx)
+        n_evaluations=int(st.lp.size), n_rounds=len(st.history), history=st.history,
+        proposals=st.Z, log_weights=st.lw, draw_index=idx)
+
+
+class _Rounds:
+    """The proposals, evaluations and smoothed weights of all rounds so far."""
+
+    def __init__(self, d: int):
+        self.d = d
+        self.proposals: list[StudentTProposal] = []
+        self.counts: list[int] = []
+        self.Z = np.empty((0, d))
+        self.lp = np.empty(0)
+        self.lw = np.empty(0)
+        self.khat, self.ess = np.inf, 0.0
+        self.reasons: list[str] = []
+        self.history: list = []
+        self.t_prop = self.t_model = self.t_psis = 0.0
+
+    def add_round(self, logpost, prop, n, rng, s) -> bool:
+        """Draw ``n`` proposals from ``prop``, evaluate them, re-weight everything against the mixture
+        and check the weights; False when no proposal so far has a finite posterior density."""
+        tp = time.perf_counter()
+        Z = prop.sample(n, rng)
+        self.proposals.append(prop)
+        self.counts.append(n)
+        self.t_prop += time.perf_counter() - tp
+        tm = time.perf_counter()
+        lp = _evaluate(logpost, Z, int(s.chunk_rows))
+        self.t_model += time.perf_counter() - tm
+        self.Z = np.vstack([self.Z, Z])
+        self.lp = np.concatenate([self.lp, lp])
+        tp = time.perf_counter()
+        # deterministic-mixture (balance heuristic) proposal density of every point so far
+        n_tot = float(sum(self.counts))
+        log_q = logsumexp(np.stack([np.log(c / n_tot) + p.logpdf(self.Z) for p, c in zip(self.proposals, self.counts)]),
+                          axis=0)
+        self.t_prop += time.perf_counter() - tp
+        raw = np.where(np.isfinite(self.lp), self.lp - log_q, -np.inf)
+        finite = bool(np.any(np.isfinite(raw)))
+        if finite:
+            self._weigh(raw, s)
+        else:
+            self._no_weights(raw)
+        self.history.append({"round": len(self.history) + 1, "n_proposals": int(n), "n_total": int(n_tot),
+                             "khat": float(self.khat), "ess": float(self.ess),
+                             "finite_fraction": float(np.mean(np.isfinite(lp))), "unmet": list(self.reasons)})
+        return finite
+
+    def _no_weights(self, raw):
+        self.khat, self.ess = np.inf, 0.0
+        self.lw = np.full(raw.size, -np.inf)
+        self.reasons = ["no proposal has a finite posterior density"]
+
+    def _weigh(self, raw, s):
+        tk = time.perf_counter()
+        self.lw, self.khat = psis_smooth(raw)
+        self.t_psis += time.perf_counter() - tk
+        w = np.exp(self.lw)
+        self.ess = float(1.0 / np.sum(w * w))
+        self.reasons = []
+        if not (self.khat <= s.khat_max):
+            self.reasons.append(f"Pareto k-hat {self.khat:.3f} > {s.khat_max:g}")
+        if self.ess < s.ess_min:
+            self.reasons.append(f"importance-sampling ESS {self.ess:.0f} < {s.ess_min:g}")
+
+    def next_proposal(self, prop, s):
+        """The next round's proposal (refitted to the weighted draws so far) and its size."""
+        tp = time.perf_counter()
+        m, C = _weighted_moments(self.Z, self.lw)
+        if self.ess >= 5 * self.d and _is_positive_definite(C):
+            new = StudentTProposal(m, s.scale**2 * C, s.df)
+        else:
+            new = StudentTProposal(prop.center, 4.0 * prop.cov, s.df)
+        n_tot = float(sum(self.counts))
+        if self.khat <= s.khat_max and self.ess > 0:
+            n_next = max(int(s.n_proposals) // 2, int(np.ceil(1.25 * n_tot * (s.ess_min / self.ess - 1.0))))
+        else:
+            n_next = 2 * int(s.n_proposals)
+        self.t_prop += time.perf_counter() - tp
+        return new, n_next

@@ -174,8 +174,50 @@ def run_ensembles(logpost, center, cov, *, settings: SamplerSettings = SamplerSe
     ss = seed if isinstance(seed, np.random.SeedSequence) else np.random.SeedSequence(seed)
     child = ss.spawn(settings.n_ensembles)
     d = center.size
-    W = settings.walkers_for(d)
     timed = _Timed(logpost)
+    samplers, states = _ensembles(logpost, timed, center, cov, settings, child)
+    bar = _progress_bar(progress, settings)
+    t0 = time.perf_counter()
+    rescued = _warm_up(samplers, states, child, settings, d, bar)
+    t_diag = 0.0
+    n_steps = 0
+    target = settings.initial_steps
+    history = []
+    while True:
+        for e, sampler in enumerate(samplers):
+            states[e] = sampler.run_mcmc(states[e], target - n_steps, progress=False)
+            if bar is not None:
+                bar.update(target - n_steps)
+        n_steps = target
+        td = time.perf_counter()
+        check = _check(samplers, n_steps, settings, history[-1]["tau_max"] if history else None)
+        t_diag += time.perf_counter() - td
+        history.append(check.record)
+        if not check.reasons or n_steps >= settings.max_steps:
+            break
+        # next check: long enough to meet the tau criterion if tau is right (10 % margin), and at
+        # least 25 % longer than now so that tau is re-estimated on a materially longer chain
+        needed = int(np.ceil(settings.min_tau_multiple * check.tau_max / (1 - settings.burn_fraction) * 1.1))
+        target = min(settings.max_steps, max(int(1.25 * n_steps), needed))
+    if bar is not None:
+        bar.close()
+    burn = int(settings.burn_fraction * n_steps)
+    chains = np.stack([s.get_chain(discard=burn) for s in samplers])
+    log_prob = np.stack([s.get_log_prob(discard=burn) for s in samplers])
+    acc = float(np.mean([np.mean(s.acceptance_fraction) for s in samplers]))
+    total = time.perf_counter() - t0
+    return SamplerRun(chains=chains, log_prob=log_prob, tau=np.max(check.taus, axis=0), rhat=check.rhat,
+                      ess=check.ess, converged=not check.reasons, n_steps=n_steps, burn=burn, acceptance=acc,
+                      reasons=check.reasons,
+                      timings={"sampling_s": total - t_diag, "model_s": timed.seconds,
+                               "diagnostics_s": t_diag, "model_calls": timed.calls},
+                      history=history, rescued_walkers=rescued)
+
+
+def _ensembles(logpost, timed, center, cov, settings, child):
+    """One emcee sampler per ensemble with its starting state (walkers around the optimum)."""
+    d = center.size
+    W = settings.walkers_for(d)
     samplers, states = [], []
     for e in range(settings.n_ensembles):
         rng = np.random.default_rng(child[e])
@@ -185,15 +227,22 @@ def run_ensembles(logpost, center, cov, *, settings: SamplerSettings = SamplerSe
                                         moves=[(emcee.moves.DEMove(), 0.9), (emcee.moves.StretchMove(), 0.1)])
         samplers.append(sampler)
         states.append(emcee.State(p0, random_state=rs.get_state()))
+    return samplers, states
+
+
+def _progress_bar(progress, settings):
     if progress is None:
         progress = sys.stderr.isatty()
-    bar = None
-    if progress:
-        from tqdm.auto import tqdm
-        bar = tqdm(total=(settings.max_steps + settings.warmup_steps) * settings.n_ensembles, desc="sampling", unit="step",
-                   leave=False, file=sys.stderr)
-    t0 = time.perf_counter()
-    # warm-up (discarded): let the ensembles find the bulk, rescue stranded walkers twice
+    if not progress:
+        return None
+    from tqdm.auto import tqdm
+    return tqdm(total=(settings.max_steps + settings.warmup_steps) * settings.n_ensembles, desc="sampling",
+                unit="step", leave=False, file=sys.stderr)
+
+
+def _warm_up(samplers, states, child, settings, d, bar) -> int:
+    """Discarded warm-up: let the ensembles find the bulk, rescue stranded walkers twice.
+    Updates ``states`` in place; returns the number of rescued walkers."""
     rescued = 0
     for e, sampler in enumerate(samplers):
         rng = np.random.default_rng(child[e].spawn(1)[0])
@@ -204,59 +253,40 @@ def run_ensembles(logpost, center, cov, *, settings: SamplerSettings = SamplerSe
         sampler.reset()
         if bar is not None:
             bar.update(settings.warmup_steps)
-    t_diag = 0.0
-    n_steps = 0
-    target = settings.initial_steps
-    prev_tau = None
-    history = []
-    converged = False
-    reasons = []
-    while True:
-        todo = target - n_steps
-        for e, sampler in enumerate(samplers):
-            states[e] = sampler.run_mcmc(states[e], todo, progress=False)
-            if bar is not None:
-                bar.update(todo)
-        n_steps = target
-        td = time.perf_counter()
-        burn = int(settings.burn_fraction * n_steps)
-        chains = np.stack([s.get_chain(discard=burn) for s in samplers])
-        taus, rhat, ess = _diagnostics(chains, settings)
-        t_diag += time.perf_counter() - td
-        tau_max = float(np.max(taus))
-        kept = n_steps - burn
-        reasons = []
-        if kept < settings.min_tau_multiple * tau_max:
-            reasons.append(f"chain {kept} steps < {settings.min_tau_multiple:g} x tau ({tau_max:.1f})")
-        if prev_tau is not None and abs(tau_max - prev_tau) > settings.tau_rel_change * prev_tau:
-            reasons.append(f"tau still changing ({prev_tau:.1f} -> {tau_max:.1f})")
-        if prev_tau is None:
-            reasons.append("tau not yet checked at two lengths")
-        if np.max(rhat) > settings.rhat_max:
-            reasons.append(f"R-hat {np.max(rhat):.4f} > {settings.rhat_max}")
-        if np.min(ess) < settings.ess_min:
-            reasons.append(f"bulk ESS {np.min(ess):.0f} < {settings.ess_min:g}")
-        history.append({"steps": n_steps, "tau_max": tau_max, "rhat_max": float(np.max(rhat)),
-                        "ess_min": float(np.min(ess)), "unmet": list(reasons)})
-        prev_tau = tau_max
-        if not reasons:
-            converged = True
-            break
-        if n_steps >= settings.max_steps:
-            break
-        # next check: long enough to meet the tau criterion if tau is right (10 % margin), and at
-        # least 25 % longer than now so that tau is re-estimated on a materially longer chain
-        needed = int(np.ceil(settings.min_tau_multiple * tau_max / (1 - settings.burn_fraction) * 1.1))
-        target = min(settings.max_steps, max(int(1.25 * n_steps), needed))
-    if bar is not None:
-        bar.close()
+    return rescued
+
+
+@dataclass
+class _Check:
+    """Convergence check of the kept chains at one length."""
+
+    taus: np.ndarray
+    rhat: np.ndarray
+    ess: np.ndarray
+    tau_max: float
+    reasons: list
+    record: dict
+
+
+def _check(samplers, n_steps, settings, prev_tau) -> _Check:
+    """The convergence criteria (module docstring) on the chains after burn-in; ``prev_tau``: the
+    largest tau at the previous check (None at the first)."""
     burn = int(settings.burn_fraction * n_steps)
     chains = np.stack([s.get_chain(discard=burn) for s in samplers])
-    log_prob = np.stack([s.get_log_prob(discard=burn) for s in samplers])
-    acc = float(np.mean([np.mean(s.acceptance_fraction) for s in samplers]))
-    total = time.perf_counter() - t0
-    return SamplerRun(chains=chains, log_prob=log_prob, tau=np.max(taus, axis=0), rhat=rhat, ess=ess,
-                      converged=converged, n_steps=n_steps, burn=burn, acceptance=acc, reasons=reasons,
-                      timings={"sampling_s": total - t_diag, "model_s": timed.seconds,
-                               "diagnostics_s": t_diag, "model_calls": timed.calls},
-                      history=history, rescued_walkers=rescued)
+    taus, rhat, ess = _diagnostics(chains, settings)
+    tau_max = float(np.max(taus))
+    kept = n_steps - burn
+    reasons = []
+    if kept < settings.min_tau_multiple * tau_max:
+        reasons.append(f"chain {kept} steps < {settings.min_tau_multiple:g} x tau ({tau_max:.1f})")
+    if prev_tau is not None and abs(tau_max - prev_tau) > settings.tau_rel_change * prev_tau:
+        reasons.append(f"tau still changing ({prev_tau:.1f} -> {tau_max:.1f})")
+    if prev_tau is None:
+        reasons.append("tau not yet checked at two lengths")
+    if np.max(rhat) > settings.rhat_max:
+        reasons.append(f"R-hat {np.max(rhat):.4f} > {settings.rhat_max}")
+    if np.min(ess) < settings.ess_min:
+        reasons.append(f"bulk ESS {np.min(ess):.0f} < {settings.ess_min:g}")
+    record = {"steps": n_steps, "tau_max": tau_max, "rhat_max": float(np.max(rhat)),
+              "ess_min": float(np.min(ess)), "unmet": list(reasons)}
+    return _Check(taus=taus, rhat=rhat, ess=ess, tau_max=tau_max, reasons=reasons, record=record)
