@@ -21,7 +21,7 @@ from __future__ import annotations
 import numpy as np
 
 from .comparison import ELPD_MIN, SE_MULTIPLE, loo_difference, richer_supported
-from .model import DISTORTION_SWITCHES, distortion_parameter_names
+from .model import distortion_parameter_names
 from .quantities import DISTORTIONS as _REGISTRY
 from .result import summarise_draws
 

@@ -44,7 +44,7 @@ from bayesprobe.inference.parameters import Parameter, ParameterSet, Prior
 from bayesprobe.inference.posterior import LogPosterior, default_parameters
 from bayesprobe.inference.sampler import run_ensembles
 from bayesprobe.model import floating_potential
-from test_calibration import band, random_case
+from cases.calibration import band, random_case
 
 PLASMA = ("T_e", "n_e", "n_i", "V_p")
 

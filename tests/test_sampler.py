@@ -123,7 +123,7 @@ def test_quasi_newton_map_equals_the_derivative_free_one(electrons, case):
     import bayesprobe as bp
     from bayesprobe.fitting import _classical, _starts
     from bayesprobe.inference.posterior import LogPosterior, default_parameters
-    from test_calibration import random_case
+    from cases.calibration import random_case
     if electrons == "maxwellian":
         cfg, sim = random_case(case)
     else:
