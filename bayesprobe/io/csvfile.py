@@ -9,7 +9,7 @@ from typing import Sequence
 import numpy as np
 
 from ..sweep import Sweep
-from .atomic import atomic_path, atomic_write_text
+from .atomic import atomic_path
 
 __all__ = ["write_csv", "write_sweep_csv"]
 
@@ -58,11 +58,5 @@ def write_sweep_csv(path, sweep_or_arrays, *, header_comment: str | None = None)
     i = np.asarray(i, dtype=float)
     if v.ndim != 1 or v.shape != i.shape:
         raise ValueError("voltage and current must be 1-D arrays of the same length")
-    parts = []
-    if header_comment:
-        for line in str(header_comment).splitlines():
-            parts.append(("# " + line).rstrip() + "\n")
-    parts.append("voltage_V,current_A\n")
-    if v.size:
-        parts.append(("%r,%r\n" * v.size) % tuple(np.column_stack([v, i]).ravel().tolist()))
-    return atomic_write_text(path, "".join(parts))
+    comments = str(header_comment).splitlines() if header_comment else ()
+    return write_csv(path, ("voltage_V", "current_A"), zip(v.tolist(), i.tolist()), comments=comments)
