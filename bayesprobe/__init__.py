@@ -27,6 +27,8 @@ _LAZY = {
     "FitResult": ".result",
     "SamplerSettings": ".inference.sampler",
     "InputError": ".errors",
+    "ConvergenceWarning": ".errors",
+    "FitOptions": ".options",
 }
 
 
@@ -72,4 +74,4 @@ sys.modules[__name__].__class__ = _Package
 
 
 __all__ = ["Probe", "Sweep", "ModelConfig", "probe_current", "floating_potential", "simulate", "fit",
-           "FitResult", "SamplerSettings", "InputError", "load_sweep", "compare", "__version__"]
+           "FitResult", "FitOptions", "SamplerSettings", "InputError", "ConvergenceWarning", "load_sweep", "compare", "__version__"]

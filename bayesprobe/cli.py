@@ -13,9 +13,10 @@ import os
 import re
 import sys
 import tomllib
+import warnings
 from pathlib import Path
 
-from .errors import InputError
+from .errors import ConvergenceWarning, InputError
 
 EXIT_OK, EXIT_INPUT, EXIT_NOT_CONVERGED = 0, 2, 3
 
@@ -217,6 +218,22 @@ def _circuit_priors(args, sweep):
     return priors, needed
 
 
+def _all_priors(args, sweep, plain=False):
+    """(prior overrides from --priors and the circuit calibration, the distortions the calibration needs).
+
+    ``sweep`` as for :func:`_circuit_priors`; ``plain``: the calibrated priors as dicts (batch records are JSON).
+    """
+    priors = _read_priors(args.priors)
+    measured, needed = _circuit_priors(args, sweep)
+    clash = sorted(set(measured) & set(priors or {}))
+    if clash:
+        raise InputError(f"prior for {', '.join(clash)} given twice (--priors and the circuit calibration); "
+                         f"drop one")
+    if measured:
+        priors = {**(priors or {}), **{n: p.to_dict() if plain else p for n, p in measured.items()}}
+    return priors, needed
+
+
 def _add_batch_parser(sub):
     b = sub.add_parser(
         "batch", help="many sweeps (files, folders, multi-sweep files) -> one results table; resumable",
@@ -387,31 +404,17 @@ def _say(args, text):
 
 def cmd_fit(args) -> int:
     from . import fitting
-    from .inference.sampler import SamplerSettings
     from .io import load_sweep
 
     sweep = load_sweep(args.sweep, voltage_column=args.voltage_column, current_column=args.current_column,
                        sign=args.sign)
     for note in sweep.notes:
         _say(args, f"note: {note}")
-    config = _config_from(args)
-    priors = _read_priors(args.priors)
-    measured, needed = _circuit_priors(args, sweep)
-    clash = sorted(set(measured) & set(priors or {}))
-    if clash:
-        raise InputError(f"prior for {', '.join(clash)} given twice (--priors and the circuit calibration); "
-                         f"drop one")
-    if measured:
-        priors = {**(priors or {}), **measured}
-    distortions = args.distortions
-    if needed and distortions != "auto":
-        distortions = tuple(distortions or ()) + tuple(n for n in needed if n not in (distortions or ()))
-    settings = SamplerSettings(max_steps=max(args.max_steps, 100))
+    opts = _fit_options(args, sweep)
     try:
-        result = fitting.fit(sweep, config=config, model=args.model, credible_level=args.credible_level,
-                             priors=priors, student_nu=args.student_t, seed=args.seed, sampler=settings,
-                             progress=None if not args.quiet else False, engine=args.engine,
-                             distortions=distortions)
+        with warnings.catch_warnings():      # not converging is reported below, with exit status 3
+            warnings.simplefilter("ignore", ConvergenceWarning)
+            result = fitting.fit(sweep, options=opts)
     except ValueError as exc:          # bad prior values and the like: one line
         raise InputError(" ".join(str(exc).split())) from None
     result.save(args.out, figures=not args.no_figures)
@@ -429,6 +432,24 @@ def cmd_fit(args) -> int:
               file=sys.stderr)
         return EXIT_NOT_CONVERGED
     return EXIT_OK
+
+
+def _fit_options(args, sweep):
+    """The FitOptions of ``bayesprobe fit``: the parsed options, the priors file and the circuit calibration."""
+    from .options import FitOptions
+    config = _config_from(args)
+    priors, needed = _all_priors(args, sweep)
+    distortions = args.distortions
+    if needed and distortions != "auto":
+        distortions = tuple(distortions or ()) + tuple(n for n in needed if n not in (distortions or ()))
+    try:
+        return FitOptions.from_mapping({
+            "config": config, "model": args.model, "credible_level": args.credible_level,
+            "priors": priors, "student_nu": args.student_t, "seed": args.seed, "max_steps": max(args.max_steps, 100),
+            "progress": None if not args.quiet else False, "engine": args.engine, "distortions": distortions,
+            "sign": args.sign})
+    except ValueError as exc:
+        raise InputError(" ".join(str(exc).split())) from None
 
 
 #: warnings cmd_fit prints otherwise (reader notes before the fit, the distortion note with the table,
@@ -514,14 +535,7 @@ def cmd_batch(args) -> int:
             or args.student_t == "fit":
         raise InputError("batch models the distortions rf, resistance, leakage and hysteresis (--distortions); "
                          "auto and outliers are options of the fit command")
-    priors = _read_priors(args.priors)
-    measured, needed = _circuit_priors(args, None)      # one circuit for every sweep of the batch
-    clash = sorted(set(measured) & set(priors or {}))
-    if clash:
-        raise InputError(f"prior for {', '.join(clash)} given twice (--priors and the circuit calibration); "
-                         f"drop one")
-    if measured:       # batch records carry plain dicts (JSON)
-        priors = {**(priors or {}), **{n: p.to_dict() for n, p in measured.items()}}
+    priors, needed = _all_priors(args, None, plain=True)      # one circuit for every sweep of the batch
     distortions = tuple(args.distortions or ()) + tuple(n for n in needed if n not in (args.distortions or ()))
     if distortions:
         from .distortion_choice import apply_distortions
@@ -535,7 +549,7 @@ def cmd_batch(args) -> int:
                            sweep_column=args.sweep_column, sweep_table=args.sweep_table,
                            keep_posteriors=args.keep_posteriors, retry_failed=args.retry_failed,
                            figures=not args.no_figures, progress=None if not args.quiet else False,
-                           engine=getattr(args, "engine", "mcmc"), warm_start=args.warm_start,
+                           engine=args.engine, warm_start=args.warm_start,
                            executor="serial" if args.serial else None)
     except KeyboardInterrupt:
         print(f"interrupted; finished sweeps are kept in {args.out} - rerun the same command to resume",

@@ -4,12 +4,14 @@ from __future__ import annotations
 import inspect
 import math
 import time
+import warnings
 from dataclasses import asdict, dataclass, replace
 
 import numpy as np
 
 from .derived import derived_quantities
 from .distortion_choice import apply_distortions, describe_distortions, distortion_starts, select_distortions
+from .errors import ConvergenceWarning
 from .inference.arviz_adapter import build_inference_data
 from .inference.engines import ENGINES as _ENGINE_REGISTRY, N_STORED_DRAWS, SeedStreams, get_engine
 from .inference.optimize import approximate_map, find_map
@@ -209,9 +211,25 @@ def fit(voltage, current=None, *, probe: Probe | None = None, ion="Ar", ion_mass
     Returns
     -------
     FitResult
+
+    Warns
+    -----
+    ConvergenceWarning
+        The result did not converge within the step budget (``result.converged`` is False;
+        its files are written with ``converged: false``).
     """
     opts = _options(dict(locals()))
-    return _fit(_as_sweep(voltage, current, opts.sign), opts)
+    result = _fit(_as_sweep(voltage, current, opts.sign), opts)
+    if not result.converged:
+        warnings.warn(_not_converged_message(result), ConvergenceWarning, stacklevel=2)
+    return result
+
+
+def _not_converged_message(result) -> str:
+    """One line: what was unmet, that the results say so, and the fix."""
+    unmet = "; ".join(result.diagnostics.get("unmet") or []) or "convergence criteria not met"
+    return (f"the fit did not converge within the step budget ({' '.join(unmet.split())}); its results are "
+            "written with converged: false - give a larger budget, e.g. sampler=SamplerSettings(max_steps=...)")
 
 
 def _options(given: dict) -> FitOptions:

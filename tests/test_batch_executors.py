@@ -6,6 +6,7 @@ with a negative control - another global seed must change the records.)
 import json
 import os
 import pickle
+import warnings
 
 import numpy as np
 import pytest
@@ -108,6 +109,51 @@ def test_executor_options_are_checked_before_any_work(series, tmp_path, bad, mes
     with pytest.raises(InputError, match=message):
         fit_many([series], out_dir=tmp_path / "o", config=CONFIG, progress=False, **bad)
     assert not (tmp_path / "o").exists()
+
+
+@pytest.mark.parametrize("bad", [{"model": "kappa"}, {"credible_level": 1.5}, {"engine": "nuts"}, {"seed": -1},
+                                 {"seed": 2.5}, {"student_nu": -2.0}, {"sign": "up"}, {"priors": [1, 2]},
+                                 {"sampler": {"max_steps": 10}}, {"config": "argon"}])
+def test_fit_options_of_a_batch_get_the_messages_of_fit(series, tmp_path, bad):
+    """The options a batch passes to every fit are checked once, before any work, by FitOptions:
+    the same one-line message as bayesprobe.fit gives (oracle: FitOptions itself)."""
+    from bayesprobe.options import FitOptions
+    with pytest.raises(ValueError) as expected:
+        FitOptions(**bad)
+    with pytest.raises(InputError) as got:
+        fit_many([series], out_dir=tmp_path / "o", **{"config": CONFIG, **bad}, progress=False)
+    assert str(got.value) == str(expected.value) and "\n" not in str(got.value)
+    assert not (tmp_path / "o").exists()
+
+
+@pytest.mark.parametrize("bad, message", [
+    ({"seed": None}, r"seed must be a non-negative integer in a batch .*got None"),
+    ({"student_nu": "fit"}, r"student_nu must be a positive number in a batch .*got 'fit'"),
+    ({"warm_start": -1}, "warm_start must be a non-negative integer"),
+    ({"workers": 0}, "workers must be a positive integer"),
+])
+def test_batch_only_rules(series, tmp_path, bad, message):
+    """Rules of a batch that a single fit does not have: every sweep's seed is derived from the
+    global one, and nu is fixed (one Student-t likelihood for every sweep)."""
+    with pytest.raises(InputError, match=message):
+        fit_many([series], out_dir=tmp_path / "o", config=CONFIG, progress=False, **bad)
+    assert not (tmp_path / "o").exists()
+
+
+def test_not_converged_sweeps_are_recorded_not_warned(series, tmp_path):
+    """fit() warns when a result did not converge; a batch worker records the status instead and
+    shows nothing. With every warning an error, the serial executor (in this process) still records
+    "not-converged" (a warning escaping the worker would have made it "failed"); 60 steps cannot
+    reach the sampler's criteria."""
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")
+        s = fit_many([series / "series.npz"], out_dir=tmp_path / "o", config=CONFIG, executor="serial",
+                     progress=False, figures=False, sampler=bp.SamplerSettings(initial_steps=60, max_steps=60))
+    records = _records(tmp_path / "o")
+    assert sorted(records) == ["series-0", "series-1", "series-2"]
+    assert {r["status"] for r in records.values()} == {"not-converged"}
+    assert all(r["reason"].startswith("not converged: ") for r in records.values())
+    assert (s.n_not_converged, s.n_failed, s.exit_status) == (3, 0, 3)
 
 
 def test_the_worker_task_is_sent_by_reference():

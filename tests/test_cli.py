@@ -147,6 +147,8 @@ def test_not_converged_exit_3_results_written(tmp_path, sweep_file):
     s = json.loads((out / "summary.json").read_text())
     assert s["diagnostics"]["converged"] is False
     assert s["diagnostics"]["unmet"]
+    # said once, by the command's own line (fit()'s ConvergenceWarning is not shown as well)
+    assert "ConvergenceWarning" not in err and err.count("did not converge") == 1, err
 
 
 def test_main_returns_code_without_exiting(tmp_path, capsys):

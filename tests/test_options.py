@@ -113,3 +113,29 @@ def test_fit_with_options_is_fit_with_keywords():
     assert not np.array_equal(a.draws["T_e"], c.draws["T_e"])          # negative control: the seed matters
     with pytest.raises(ValueError, match="not both"):
         bp.fit(sim.sweep, options=FitOptions(**kw), seed=9 + 1)
+
+
+def test_fit_warns_exactly_when_it_did_not_converge():
+    """fit() issues one ConvergenceWarning when its result did not converge and none when it did.
+    Oracle: the result's own ``converged`` flag and ``unmet`` list (the sampler's criteria); a
+    60-step budget cannot reach 50 autocorrelation times, the default budget (fast engine) does."""
+    import warnings
+    sim = bp.simulate(n_points=120, seed=4)
+    with pytest.warns(bp.ConvergenceWarning) as caught:
+        short = bp.fit(sim.sweep, seed=0, progress=False, sampler=SamplerSettings(initial_steps=60, max_steps=60))
+    assert not short.converged and short.diagnostics["unmet"]
+    assert len([w for w in caught if issubclass(w.category, bp.ConvergenceWarning)]) == 1
+    text = str(caught[0].message)
+    assert "\n" not in text and "converged: false" in text and "max_steps" in text
+    assert all(" ".join(u.split()) in text for u in short.diagnostics["unmet"])
+    assert caught[0].filename == __file__                   # points at the caller, not into bayesprobe
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")                      # any warning would fail here
+        full = bp.fit(sim.sweep, options=FitOptions(engine="fast", seed=9, progress=False))
+    assert full.converged
+
+
+def test_public_names():
+    from bayesprobe.errors import ConvergenceWarning
+    assert bp.FitOptions is FitOptions and bp.ConvergenceWarning is ConvergenceWarning
+    assert {"FitOptions", "ConvergenceWarning"} <= set(bp.__all__)

@@ -81,9 +81,11 @@ def fit_many(inputs, *, out_dir, config=None, model: str = "maxwellian", credibl
     config : ModelConfig, optional
         Probe and plasma model for every sweep (default :func:`bayesprobe.fitting.make_config`).
     model, credible_level, priors, student_nu, sampler :
-        As in :func:`bayesprobe.fit`.
+        As in :func:`bayesprobe.fit`, checked once by :class:`bayesprobe.options.FitOptions` (the same
+        messages); every sweep is fitted with that FitOptions and its own seed and config. A batch
+        fits a fixed ``student_nu`` (a number, not ``"fit"``).
     seed : int
-        Global seed; each sweep's seed is :func:`sweep_seed` (seed, sweep id).
+        Global seed (an integer, not None); each sweep's seed is :func:`sweep_seed` (seed, sweep id).
     workers : int, optional
         Local worker processes (default: the usable cores), or Dask workers with ``dask="local"``.
     dask : None, "local", scheduler address, or a ``distributed.Client``

@@ -30,7 +30,9 @@ def warm_groups(items, block: int):
 
 class TaskMaker:
     """Worker tasks from sweep items: the sweep loaded, its seed and its settings (``options``,
-    a :class:`~.options.BatchOptions`; ``table``: per-sweep configs by label or id)."""
+    a :class:`~.options.BatchOptions`; ``table``: per-sweep configs by label or id). A task holds
+    the sweep, its FitOptions (``"options"``: the batch's, with the sweep's config and seed), the
+    seed and the record metadata."""
 
     def __init__(self, options, table: dict):
         self.options = options

@@ -5,6 +5,7 @@
 """
 from __future__ import annotations
 
+import warnings
 from pathlib import Path
 
 from ._messages import one_line
@@ -64,13 +65,13 @@ def _run_task(task: dict, start=None):
 
 
 def _fit(fit, task: dict, start):
-    """``fit`` (:func:`bayesprobe.fit`) called with the task's options."""
-    extra = {} if task.get("engine", "mcmc") == "mcmc" else {"engine": task["engine"]}
-    if start is not None:
-        extra["start"] = start
-    return fit(task["sweep"], config=task["config"], model=task["model"], credible_level=task["credible_level"],
-               priors=task["priors"], student_nu=task["student_nu"], seed=task["seed"], sampler=task["sampler"],
-               progress=False, **extra)
+    """``fit`` (:func:`bayesprobe.fit`) called with the task's options (a FitOptions), quietly: the
+    record carries a non-converged status, so the ConvergenceWarning would only say it twice."""
+    from ..errors import ConvergenceWarning
+    opts = task["options"] if start is None else task["options"].with_(start=start)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", ConvergenceWarning)
+        return fit(task["sweep"], options=opts)
 
 
 def _posterior_bytes(result) -> bytes:

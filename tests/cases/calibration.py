@@ -5,6 +5,8 @@ Used by tests/test_calibration.py, tests/test_importance.py, tests/test_sampler.
 tests/test_batch.py. Oracles: binomial bands (scipy.stats.binom) and Monte-Carlo standard
 errors from the effective sample size (see tests/test_calibration.py).
 """
+import warnings
+
 import numpy as np
 from scipy.stats import binom
 
@@ -49,7 +51,9 @@ def coverage(indices, engine="mcmc"):
     records = []
     for i in indices:
         cfg, sim = random_case(i)
-        res = bp.fit(sim.sweep, config=cfg, seed=i, progress=False, engine=engine)
+        with warnings.catch_warnings():      # converged is recorded (and checked by the tests)
+            warnings.simplefilter("ignore", bp.ConvergenceWarning)
+            res = bp.fit(sim.sweep, config=cfg, seed=i, progress=False, engine=engine)
         converged += res.converged
         summ = res.parameter_summary()
         records.append(fit_record(res))
