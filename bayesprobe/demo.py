@@ -4,6 +4,7 @@ from __future__ import annotations
 import json
 import sys
 import time
+import warnings
 from importlib import resources
 from pathlib import Path
 
@@ -25,21 +26,25 @@ def _limit_threads():
 
 def _fit_entry(folder: str, entry: dict, config_dict: dict, out: str, seed: int) -> dict:
     """Fit one demo sweep with automatic model choice, write its results, return table rows."""
+    from .errors import ConvergenceWarning
     from .fitting import fit
     from .io import load_sweep
     from .model import ModelConfig
+    from .quantities import QUANTITIES, main_names
 
     folder = Path(folder)
     config = ModelConfig.from_dict(config_dict)
     sweep = load_sweep(folder / entry["file"])
     truth = json.loads((folder / f"{entry['sweep_id']}.truth.json").read_text())["parameters"]
     t = time.perf_counter()
-    result = fit(sweep, config=config, model="auto", seed=seed, progress=False)
+    with warnings.catch_warnings():     # convergence is recorded in the table, not warned twice
+        warnings.simplefilter("ignore", ConvergenceWarning)
+        result = fit(sweep, config=config, model="auto", seed=seed, progress=False)
     result.save(Path(out) / entry["sweep_id"])
     summary = result.parameter_summary()
     rows = []
-    for name in ("T_e", "T_e_cold", "T_e_hot", "hot_fraction", "n_e", "n_i", "V_f", "V_p"):
-        if name in summary:
+    for name in main_names(summary):
+        if QUANTITIES[name].table:
             e = summary[name]
             rows.append({"sweep_id": entry["sweep_id"], "model": result.model, "parameter": name,
                          "unit": e["unit"], "median": e["median"], "ci_low": e["ci_low"], "ci_high": e["ci_high"],

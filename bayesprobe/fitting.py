@@ -13,12 +13,12 @@ from .derived import derived_quantities
 from .distortion_choice import apply_distortions, describe_distortions, distortion_starts, select_distortions
 from .errors import ConvergenceWarning
 from .inference.arviz_adapter import build_inference_data
-from .inference.engines import ENGINES as _ENGINE_REGISTRY, N_STORED_DRAWS, SeedStreams, get_engine
+from .inference.engines import N_STORED_DRAWS, SeedStreams, get_engine
 from .inference.optimize import approximate_map, find_map
 from .inference.posterior import LogPosterior, default_parameters
 from .inference.sampler import SamplerSettings
 from .model import ModelConfig
-from .options import MODEL_CHOICES, FitOptions  # noqa: F401  (MODEL_CHOICES: read by batch.fit_many)
+from .options import FitOptions
 from .physics.electron_models import ELECTRON_MODELS
 from .physics.geometry import Probe
 from .result import FitResult, units_for
@@ -26,8 +26,6 @@ from .sweep import Sweep
 
 __all__ = ["fit", "make_config", "N_STORED_DRAWS", "FitOptions"]
 
-#: option values of ``engine`` (the registry is :data:`bayesprobe.inference.engines.ENGINES`)
-ENGINES = tuple(_ENGINE_REGISTRY)
 #: the simplest electron model: the classical start analysis assumes it
 _SIMPLEST = min(ELECTRON_MODELS.values(), key=lambda m: m.complexity)
 #: step budget of the two-temperature fit inside ``model="auto"`` before the comparison
