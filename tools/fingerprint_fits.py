@@ -5,9 +5,9 @@
     python tools/fingerprint_fits.py --compare before.json after.json
 
 Every fit uses the public API only (simulate, fit), so the script runs unchanged on any
-checkout since the API appeared. The sweeps follow the calibration set's recipe (random
-planar / cylindrical probes, gases, T_e, n, V_p, noise), plus two-temperature and distorted
-cases; each is fitted with fixed seeds by both engines. ``--compare`` prints the largest
+checkout since the API appeared (point PYTHONPATH at the checkout to fingerprint; the
+script takes its cases from this checkout's tests/cases). The sweeps are the first sweeps of
+the calibration set (tests/cases/calibration.py), plus two-temperature and distorted cases; each is fitted with fixed seeds by both engines. ``--compare`` prints the largest
 relative difference of every summarised number (expect exactly 0 for a pure refactor).
 """
 from __future__ import annotations
@@ -15,35 +15,13 @@ from __future__ import annotations
 import argparse
 import json
 import sys
+from pathlib import Path
 
-import numpy as np
 
 import bayesprobe as bp
 
-GASES = ("Ar", "He", "Ne", "Kr")
-
-
-def calibration_case(i: int):
-    rng = np.random.default_rng(1000 + i)
-    gas = GASES[i % len(GASES)]
-    kind = ("planar", "cylindrical-oml", "cylindrical-auto")[i % 3]
-    if kind == "planar":
-        probe = bp.Probe("planar", radius=float(rng.uniform(1e-3, 4e-3)))
-        theory = "thin-sheath"
-    else:
-        probe = bp.Probe("cylindrical", radius=float(rng.uniform(25e-6, 125e-6)),
-                         length=float(rng.uniform(2e-3, 1e-2)))
-        theory = "oml" if kind == "cylindrical-oml" else "auto"
-    cfg = bp.ModelConfig(probe=probe, ion=gas, ion_collection=theory)
-    T_e = float(np.exp(rng.uniform(np.log(1.0), np.log(8.0))))
-    n = float(np.exp(rng.uniform(np.log(1e15), np.log(2e17))))
-    V_p = float(rng.uniform(2.0, 20.0))
-    v_min = V_p - float(rng.uniform(8, 15)) * T_e - float(rng.uniform(5, 25))
-    v_max = V_p + float(rng.uniform(1.5, 4.0)) * T_e
-    sim = bp.simulate({"n_e": n, "T_e": T_e, "V_p": V_p}, config=cfg, v_min=v_min, v_max=v_max,
-                      n_points=int(rng.integers(250, 700)), noise_rel=float(rng.uniform(0.003, 0.03)),
-                      seed=int(rng.integers(2**31)))
-    return cfg, sim
+sys.path.insert(0, str(Path(__file__).resolve().parents[1] / "tests"))
+from cases.calibration import random_case as calibration_case  # noqa: E402  (public API only)
 
 
 def cases(n_calibration: int):
