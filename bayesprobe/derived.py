@@ -5,6 +5,7 @@ import numpy as np
 
 from .model import ModelConfig, effective_temperature, floating_potential, measured_floating_potential
 from .physics.constants import E_CHARGE, EPS0, M_E
+from .physics.formulary import _debye_length
 from .quantities import QUANTITIES
 
 __all__ = ["DERIVED_UNITS", "derived_quantities"]
@@ -29,7 +30,7 @@ def derived_quantities(phys: dict, config: ModelConfig) -> dict:
     if config.distorted:
         out["V_f_measured"] = measured_floating_potential(phys, config)
     out["Vp_minus_Vf_over_Te"] = (phys["V_p"] - V_f) / T_eff
-    lam = np.sqrt(EPS0 * T_s / (n_e * E_CHARGE))
+    lam = _debye_length(n_e, T_s)
     out["debye_length"] = lam
     out["r_p_over_debye"] = config.probe.radius / lam
     out["omega_pe"] = np.sqrt(n_e * E_CHARGE**2 / (EPS0 * M_E))

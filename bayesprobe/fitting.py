@@ -17,7 +17,7 @@ from .inference.engines import N_STORED_DRAWS, SeedStreams, get_engine
 from .inference.optimize import approximate_map, find_map
 from .inference.posterior import LogPosterior, default_parameters
 from .inference.sampler import SamplerSettings
-from .model import ModelConfig
+from .model import DEFAULT_ION_TEMPERATURE, ModelConfig
 from .options import FitOptions
 from .physics.electron_models import ELECTRON_MODELS
 from .physics.geometry import Probe
@@ -33,7 +33,7 @@ AUTO_RICH_MAX_STEPS = 4000
 
 
 def make_config(*, probe=None, ion="Ar", ion_mass=None, ion_collection="auto", electrons="maxwellian",
-                quasi_neutral=False, T_i=0.026, bohm_factor=float(np.exp(-0.5)), sheath_expansion=True,
+                quasi_neutral=False, T_i=DEFAULT_ION_TEMPERATURE, bohm_factor=float(np.exp(-0.5)), sheath_expansion=True,
                 electron_sheath_expansion=False, rf_fluctuation=False, series_resistance=False,
                 leakage=False, hysteresis=False) -> ModelConfig:
     """Build a :class:`ModelConfig` from plain options (``ion_mass`` in u overrides ``ion``)."""
@@ -144,7 +144,7 @@ def _plain_seeded_starts(sweep, config, priors, student_nu, cls, params):
 
 def fit(voltage, current=None, *, probe: Probe | None = None, ion="Ar", ion_mass=None,
         ion_collection="auto", model="maxwellian", credible_level=0.9, priors=None, student_nu=None,
-        quasi_neutral=False, T_i=0.026, bohm_factor=float(np.exp(-0.5)), seed: int | None = 0,
+        quasi_neutral=False, T_i=DEFAULT_ION_TEMPERATURE, bohm_factor=float(np.exp(-0.5)), seed: int | None = 0,
         sampler: SamplerSettings | None = None, progress=None, sign="auto",
         config: ModelConfig | None = None, engine: str = "mcmc", start=None,
         distortions=None, options: FitOptions | None = None) -> FitResult:

@@ -82,6 +82,9 @@ __all__ = ["ModelConfig", "ELECTRON_MODELS", "probe_current", "floating_potentia
 #: :data:`bayesprobe.physics.electron_models.ELECTRON_MODELS`)
 ELECTRON_MODELS = tuple(_ELECTRON_MODELS)
 #: ModelConfig switch -> the nuisance parameters it adds
+#: default ion temperature in eV: room temperature, for ions that have not been heated
+DEFAULT_ION_TEMPERATURE = 0.026
+
 DISTORTION_SWITCHES = {d.switch: d.parameters for d in DISTORTIONS.values() if d.switch is not None}
 
 
@@ -124,7 +127,7 @@ class ModelConfig:
     ion: str | float = "Ar"
     ion_collection: str = "auto"
     electrons: str = "maxwellian"
-    T_i: float = 0.026
+    T_i: float = DEFAULT_ION_TEMPERATURE
     bohm_factor: float | str = float(np.exp(-0.5))
     sheath_expansion: bool = True
     electron_sheath_expansion: bool = False

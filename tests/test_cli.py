@@ -209,4 +209,6 @@ def test_option_choices_follow_the_registries():
         assert choices(command, "--ion-collection") == list(ION_THEORIES)
         assert choices(command, "--model") == [*ELECTRON_MODELS, "auto"]
     assert choices("simulate", "--model") == list(ELECTRON_MODELS)
+    from bayesprobe.model import DEFAULT_ION_TEMPERATURE
+    assert build_parser().parse_args(["fit", "x.csv", "--out", "o"]).ion_temperature == DEFAULT_ION_TEMPERATURE
     assert build_parser().parse_args(["batch", "x.npz", "--out", "o", "--serial"]).serial

@@ -44,7 +44,7 @@ from scipy.special import i0e
 
 from ._checks import finite as _finite
 from ._checks import positive as _positive
-from .constants import E_CHARGE, EPS0
+from .formulary import _debye_length
 from .electron_models import ElectronModel
 from .electrons import _attracted, _attracted_slope, _saturation, _sum_groups, maxwellian_groups
 from .geometry import Probe
@@ -152,7 +152,7 @@ def _rf_maxwellian(V, V_p, n_e, T_e, probe, sheath_expansion, V_rf, slope=False)
     x = (V - V_p) / T_e
     lam = None
     if sheath_expansion and probe.geometry == "planar":
-        lam = np.sqrt(EPS0 * T_e / (np.maximum(n_e, 1.0) * E_CHARGE))
+        lam = _debye_length(np.maximum(n_e, 1.0), T_e)
     I_es = _saturation(n_e, T_e, probe.area)
     if not slope:
         return I_es * _rf_factor(x, V_rf / T_e, probe.geometry, probe.radius, lam)

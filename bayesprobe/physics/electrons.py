@@ -35,7 +35,8 @@ import numpy as np
 from scipy.special import erfcx
 
 from ._checks import finite as _finite, fraction as _fraction, positive as _positive
-from .constants import E_CHARGE, EPS0, M_E
+from .constants import E_CHARGE, M_E
+from .formulary import _debye_length
 from .geometry import Probe
 
 __all__ = ["electron_saturation_current", "attracted_factor", "maxwellian_electron_current",
@@ -127,7 +128,7 @@ def _maxwellian(V, V_p, n_e, T_e, probe, sheath_expansion, slope=False):
     x = (V - V_p) / T_e
     lam = None
     if sheath_expansion and probe.geometry == "planar":
-        lam = np.sqrt(EPS0 * T_e / (np.maximum(n_e, 1.0) * E_CHARGE))
+        lam = _debye_length(np.maximum(n_e, 1.0), T_e)
     I_es = _saturation(n_e, T_e, probe.area)
     ex = np.exp(np.minimum(x, 0.0))
     if probe.geometry == "planar" and lam is None:

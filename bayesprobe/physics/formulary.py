@@ -37,6 +37,11 @@ def debye_length(n_e, T_e):
     """Electron Debye length sqrt(eps0 T_e / (n_e e)) in m (T_e in eV, n_e in m^-3)."""
     n_e = _check_positive("n_e", n_e)
     T_e = _check_positive("T_e", T_e)
+    return _debye_length(n_e, T_e)
+
+
+def _debye_length(n_e, T_e):
+    """Unchecked :func:`debye_length` (the hot path)."""
     return np.sqrt(EPS0 * T_e / (n_e * E_CHARGE))
 
 

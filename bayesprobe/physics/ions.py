@@ -55,7 +55,8 @@ from __future__ import annotations
 import numpy as np
 
 from ._checks import finite as _finite, positive as _positive
-from .constants import E_CHARGE, EPS0
+from .constants import E_CHARGE
+from .formulary import _debye_length
 from .electrons import _attracted, _attracted_slope
 from .geometry import Probe
 
@@ -124,7 +125,7 @@ def _thin_sheath(V, V_p, n_i, T_e, probe, ion_mass, n_e, T_i, bohm_factor, sheat
         I = I_B * rep
         return (I, np.where(V > V_p, -I / T_i, 0.0)) if slope else I
     n_for_debye = n_i if n_e is None else n_e
-    lam = np.sqrt(EPS0 * T_e / (n_for_debye * E_CHARGE))
+    lam = _debye_length(n_for_debye, T_e)
     gap = np.maximum(V_p - V, 0.0)
     u = np.sqrt(gap / T_e)
     s = (_CHILD / probe.radius) * lam * (u * np.sqrt(u))  # s/r_p, (V0/T_e)^(3/4) via two roots
@@ -173,7 +174,7 @@ def _abr(V, V_p, n_i, T_e, probe, ion_mass, n_e, T_i):
     from .abr import abr_current  # table loaded lazily
 
     n_for_debye = n_i if n_e is None else n_e
-    lam = np.sqrt(EPS0 * T_e / (n_for_debye * E_CHARGE))
+    lam = _debye_length(n_for_debye, T_e)
     xi = probe.radius / lam
     eta = np.maximum(V_p - V, 0.0) / T_e
     i_norm = abr_current(xi, eta, probe.geometry)
