@@ -24,7 +24,7 @@ from __future__ import annotations
 import math
 import re
 
-__all__ = ["summary_warnings", "LEVELS", "CODES", "RATIO_TOLERANCE", "PRIOR_EDGE", "PARETO_K_LIMIT",
+__all__ = ["summary_warnings", "LEVELS", "CODES", "RATIO_TOLERANCE", "PRIOR_EDGE", "PARETO_K_LIMIT", "RESIDUAL_Z_LIMIT",
            "format_warning"]
 
 #: warning levels, gravest first
@@ -51,8 +51,12 @@ CODES = {
     "alternative-not-converged": "caution", "input-note": "note", "sign-flipped": "note",
     "distortion-selection": "note", "outliers-flagged": "caution", "hysteresis-shift": "caution",
     "classical-failed": "caution", "classical-flag": "caution", "density-ratio": "caution",
-    "prior-edge-lower": "caution", "prior-edge-upper": "caution",
+    "prior-edge-lower": "caution", "prior-edge-upper": "caution", "residuals-correlated": "caution",
 }
+#: standardised residuals are flagged as correlated when the lag-1 autocorrelation exceeds this many
+#: of its standard deviations under independence, 1/sqrt(n) (Bartlett 1946, from memory): for
+#: independent noise the chance is about 3e-5 (one-sided normal tail at 4)
+RESIDUAL_Z_LIMIT = 4.0
 
 
 def _num(v):
@@ -227,7 +231,20 @@ def _prior_edges(s: dict) -> list:
     return out
 
 
-_RULES = (_convergence, _comparison, _input, _distortions, _classical, _density_ratio, _prior_edges)
+def _residuals(s: dict) -> list:
+    res = _dict(s.get("residuals"))
+    rho, z = _num(res.get("lag1_autocorrelation")), _num(res.get("lag1_z"))
+    if rho is None or z is None or z <= RESIDUAL_Z_LIMIT:
+        return []
+    return [_w("residuals-correlated",
+               f"the residuals are correlated (lag-1 autocorrelation {_g(rho, 2)}, {_g(z, 2)} standard deviations "
+               "above independent noise): the model treats the points as independent, so every credible interval "
+               "is too narrow and may miss the truth",
+               "average or decimate oversampled points, check the digitiser filter and RF pickup; treat the "
+               "intervals as lower bounds")]
+
+
+_RULES = (_convergence, _comparison, _input, _distortions, _classical, _density_ratio, _prior_edges, _residuals)
 
 
 def summary_warnings(summary: dict) -> list[dict]:

@@ -153,6 +153,7 @@ class FitResult:
             "classical": self.classical,
             "parameter_order": list(self.parameter_order),
             "quantities": describe(self.draws),
+            "residuals": self.residuals(),
             "priors": self.priors,
             "model_settings": self.config.to_dict(),
             "likelihood": {"kind": "gaussian" if self.student_nu is None else "student-t",
@@ -173,6 +174,23 @@ class FitResult:
         from .checks import summary_warnings
         s["warnings"] = summary_warnings(s)
         return s
+
+    def residuals(self) -> dict | None:
+        """Residual diagnostics at the posterior maximum (lag-1 autocorrelation of the standardised
+        residuals, :func:`bayesprobe.inference.residuals.residual_diagnostics`); None when the
+        maximum is not available."""
+        from .inference.residuals import residual_diagnostics
+        from .model import probe_current
+        m = self.map_estimate or {}
+        if not all(k in m for k in ("sigma_floor", "sigma_rel")):
+            return None
+        try:
+            with np.errstate(all="ignore"):
+                mu = probe_current(self.voltage, m, self.config, branches=self.branches, validate=False)
+        except (ValueError, KeyError):
+            return None
+        sd = np.sqrt(m["sigma_floor"] ** 2 + (m["sigma_rel"] * mu) ** 2)
+        return residual_diagnostics(self.current, mu, sd, None if self.branches is None else self.branches[0])
 
     def warnings(self) -> list[dict]:
         """Scientific warnings about this fit (code, level, one-line message, hint; see

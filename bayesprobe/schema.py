@@ -54,7 +54,7 @@ MAX_JSON_BYTES = 16 << 20
 
 _DICT_BLOCKS = ("diagnostics", "classical", "priors", "quantities", "model_settings", "likelihood",
                 "map_estimate", "sweep", "sampler_settings", "versions", "correlations", "comparison",
-                "distortions")
+                "distortions", "residuals")
 _STAT_KEYS = ("mean", "sd", "median", "ci_low", "ci_high")
 
 
