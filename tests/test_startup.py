@@ -40,7 +40,12 @@ def _modules_after(code: str) -> set[str]:
                                   "with contextlib.redirect_stdout(io.StringIO()), contextlib.suppress(SystemExit):\n"
                                   "    bayesprobe.cli.main(['--help'])\n"
                                   "with contextlib.redirect_stdout(io.StringIO()), contextlib.suppress(SystemExit):\n"
-                                  "    bayesprobe.cli.main(['fit', '--help'])"])
+                                  "    bayesprobe.cli.main(['fit', '--help'])",
+                                  # a bad sweep file is reported before the fitting stack is imported
+                                  "import bayesprobe.cli, contextlib, io\n"
+                                  "with contextlib.redirect_stderr(io.StringIO()):\n"
+                                  "    assert bayesprobe.cli.main(['fit', '/nonexistent/sweep.csv', '--out', "
+                                  "'/nonexistent/out']) == 2"])
 def test_light_imports_leave_heavy_libraries_unloaded(code):
     loaded = _modules_after(code)
     assert "bayesprobe" in loaded

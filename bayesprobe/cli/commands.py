@@ -121,14 +121,15 @@ def _say(args, text):
 # ---------------------------------------------------------------------------- commands
 
 def cmd_fit(args) -> int:
-    from .. import fitting
     from ..io import load_sweep
 
+    # the sweep first: a bad file is reported before the fitting stack is imported
     sweep = load_sweep(args.sweep, voltage_column=args.voltage_column, current_column=args.current_column,
                        sign=args.sign)
     for note in sweep.notes:
         _say(args, f"note: {note}")
     opts = _fit_options(args, sweep)
+    from .. import fitting
     try:
         with warnings.catch_warnings():      # not converging is reported below, with exit status 3
             warnings.simplefilter("ignore", ConvergenceWarning)
